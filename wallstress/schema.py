@@ -1,0 +1,175 @@
+"""Canonical fields: name, internal unit, plausible ranges, meaning and header aliases.
+
+Internal units are cm, kg, mmHg, mL, ms and years. Every field has two ranges in its internal unit:
+
+- ``hard``: outside it the value is physically impossible for a human LV study; the value is not used
+  (NaN in every measure that needs it) and the row gets an error finding.
+- ``typical``: outside it the value is possible but unusual for an adult study; it is used, and the
+  row gets a warning finding, because it is the commonest sign of a unit or typing error.
+
+The ranges are broad bounds from clinical experience (common practice, no source); they are screening
+limits, not reference values. Reference values live in ``reference_tables/``.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+
+
+@dataclass(frozen=True)
+class Field:
+    """One canonical column."""
+
+    name: str
+    kind: str  # "id", "date", "sex", "number"
+    unit: str  # internal unit ("" when not a number)
+    quantity: str  # "length", "mass", "pressure", "volume", "area", "time", "rate", "age", ""
+    meaning: str
+    hard: tuple[float, float] | None = None
+    typical: tuple[float, float] | None = None
+    aliases: tuple[str, ...] = field(default_factory=tuple)
+    required_for: tuple[str, ...] = field(default_factory=tuple)
+
+
+def _f(*args, **kwargs) -> Field:
+    return Field(*args, **kwargs)
+
+
+FIELDS: tuple[Field, ...] = (
+    _f("study_id", "id", "", "", "Identifier of the echocardiogram.",
+       aliases=("study", "study id", "exam id", "examid", "accession", "accession number", "echo id", "record id")),
+    _f("patient_id", "id", "", "", "Identifier of the patient (pseudonymous).",
+       aliases=("patient", "patient id", "mrn", "pid", "subject", "subject id", "case id", "participant")),
+    _f("study_date", "date", "", "", "Date of the study.",
+       aliases=("date", "exam date", "echo date", "visit date", "study date", "scan date")),
+    _f("sex", "sex", "", "", "Sex (F or M); sex-specific cut-offs need it.",
+       aliases=("gender", "sex f m", "sex mf")),
+    _f("age_years", "number", "years", "age", "Age at the study.", (0, 120), (16, 100),
+       aliases=("age", "age y", "age yrs")),
+    _f("height_cm", "number", "cm", "length", "Body height.", (40, 250), (130, 210),
+       aliases=("height", "ht", "stature", "body height")),
+    _f("weight_kg", "number", "kg", "mass", "Body weight.", (2, 400), (35, 200),
+       aliases=("weight", "wt", "body weight", "mass kg")),
+    _f("sbp_mmhg", "number", "mmHg", "pressure", "Cuff systolic blood pressure.", (40, 320), (80, 230),
+       aliases=("sbp", "systolic", "systolic bp", "sys bp", "bp sys", "sbp 1", "sbp1", "systolic 1")),
+    _f("dbp_mmhg", "number", "mmHg", "pressure", "Cuff diastolic blood pressure.", (10, 200), (40, 130),
+       aliases=("dbp", "diastolic", "diastolic bp", "dia bp", "bp dia", "dbp 1", "dbp1", "diastolic 1")),
+    _f("sbp_2_mmhg", "number", "mmHg", "pressure", "Second cuff systolic reading.", (40, 320), (80, 230),
+       aliases=("sbp 2", "sbp2", "systolic 2")),
+    _f("dbp_2_mmhg", "number", "mmHg", "pressure", "Second cuff diastolic reading.", (10, 200), (40, 130),
+       aliases=("dbp 2", "dbp2", "diastolic 2")),
+    _f("sbp_3_mmhg", "number", "mmHg", "pressure", "Third cuff systolic reading.", (40, 320), (80, 230),
+       aliases=("sbp 3", "sbp3", "systolic 3")),
+    _f("dbp_3_mmhg", "number", "mmHg", "pressure", "Third cuff diastolic reading.", (10, 200), (40, 130),
+       aliases=("dbp 3", "dbp3", "diastolic 3")),
+    _f("es_pressure_measured_mmhg", "number", "mmHg", "pressure",
+       "Measured end-systolic pressure (e.g. calibrated carotid tonometry), used when present and chosen.",
+       (40, 300), (60, 220), aliases=("esp", "es pressure", "end systolic pressure", "pes")),
+    _f("hr_bpm", "number", "bpm", "rate", "Heart rate during the study.", (15, 300), (40, 150),
+       aliases=("hr", "heart rate", "pulse", "rate")),
+    _f("ivsd_cm", "number", "cm", "length", "Interventricular septal thickness at end-diastole.",
+       (0.1, 4.0), (0.5, 2.0), aliases=("ivsd", "ivs d", "ivs", "septum", "ivstd", "ivs diastole", "septal thickness"),
+       required_for=("lv_mass_g", "rwt")),
+    _f("lvidd_cm", "number", "cm", "length", "LV internal diameter at end-diastole.",
+       (1.0, 12.0), (3.0, 7.5), aliases=("lvidd", "lvid d", "lvedd", "lvdd", "lvid diastole", "edd"),
+       required_for=("lv_mass_g", "rwt", "fs_pct")),
+    _f("pwd_cm", "number", "cm", "length", "LV posterior wall thickness at end-diastole.",
+       (0.1, 4.0), (0.5, 2.0), aliases=("pwd", "lvpwd", "pw d", "lvpw d", "lvpwtd", "pwtd", "posterior wall", "pw diastole"),
+       required_for=("lv_mass_g", "rwt")),
+    _f("ivss_cm", "number", "cm", "length", "Interventricular septal thickness at end-systole.",
+       (0.1, 5.0), (0.6, 2.6), aliases=("ivss", "ivs s", "ivsts", "ivs systole")),
+    _f("lvids_cm", "number", "cm", "length", "LV internal diameter at end-systole.",
+       (0.5, 11.0), (1.5, 6.5), aliases=("lvids", "lvid s", "lvesd", "lvds", "lvid systole", "esd"),
+       required_for=("fs_pct", "mess_kdyn_cm2")),
+    _f("pws_cm", "number", "cm", "length", "LV posterior wall thickness at end-systole.",
+       (0.1, 5.0), (0.6, 2.6), aliases=("pws", "lvpws", "pw s", "lvpw s", "lvpwts", "pwts", "pw systole"),
+       required_for=("mess_kdyn_cm2",)),
+    _f("lvedv_ml", "number", "mL", "volume", "LV end-diastolic volume measured (e.g. biplane).",
+       (5, 800), (40, 300), aliases=("lvedv", "edv", "lv edv", "edv biplane", "lvedv biplane")),
+    _f("lvesv_ml", "number", "mL", "volume", "LV end-systolic volume measured (e.g. biplane).",
+       (1, 700), (10, 200), aliases=("lvesv", "esv", "lv esv", "esv biplane", "lvesv biplane")),
+    _f("epi_area_cm2", "number", "cm2", "area", "Short-axis epicardial area at the papillary muscles (A1).",
+       (5, 150), (15, 80), aliases=("epi area", "a1", "epicardial area")),
+    _f("endo_area_cm2", "number", "cm2", "area", "Short-axis endocardial area at the papillary muscles (A2).",
+       (1, 100), (5, 50), aliases=("endo area", "a2", "endocardial area")),
+    _f("lv_length_cm", "number", "cm", "length", "LV long axis, widest short-axis level to apex plus to mitral plane (a + d).",
+       (2, 16), (5, 11), aliases=("lv length", "lv long axis", "long axis")),
+    _f("lv_semimajor_cm", "number", "cm", "length", "Semi-major axis from the widest short-axis radius to the apex (a).",
+       (1, 14), (3, 9), aliases=("semimajor", "semi major axis")),
+    _f("lv_truncated_semimajor_cm", "number", "cm", "length",
+       "Truncated semi-major axis from the widest short-axis radius to the mitral plane (d).",
+       (0.1, 6), (1, 4), aliases=("truncated semimajor", "truncated semi major axis")),
+    _f("ejection_time_ms", "number", "ms", "time", "LV ejection time.", (100, 600), (200, 400),
+       aliases=("et", "lvet", "ejection time")),
+)
+
+BY_NAME: dict[str, Field] = {f.name: f for f in FIELDS}
+NUMERIC_FIELDS: tuple[str, ...] = tuple(f.name for f in FIELDS if f.kind == "number")
+LINEAR_FIELDS: tuple[str, ...] = ("ivsd_cm", "lvidd_cm", "pwd_cm", "ivss_cm", "lvids_cm", "pws_cm")
+
+
+def normalise_header(text: object) -> str:
+    """Fold a header for matching: lower case, units in brackets removed, punctuation to spaces.
+
+    >>> normalise_header("  LVIDd (mm) ")
+    'lvidd'
+    >>> normalise_header("IVS_d [cm]")
+    'ivs d'
+    """
+    s = str(text).strip().lower()
+    s = re.sub(r"[\(\[\{].*?[\)\]\}]", " ", s)
+    s = re.sub(r"[^0-9a-z]+", " ", s)
+    return " ".join(s.split())
+
+
+def _alias_index() -> dict[str, str]:
+    index: dict[str, str] = {}
+    for f in FIELDS:
+        for name in (f.name, f.name.replace("_", " "), *f.aliases):
+            index.setdefault(normalise_header(name), f.name)
+            index.setdefault(normalise_header(name).replace(" ", ""), f.name)
+    return index
+
+
+ALIASES: dict[str, str] = _alias_index()
+
+
+# Output columns, in the order they are appended after the user's columns. Units are in the names.
+OUTPUT_COLUMNS: tuple[str, ...] = (
+    "bsa_m2",
+    "lv_mass_g",
+    "lv_mass_method",
+    "lvmi_bsa_g_m2",
+    "lvmi_h27_g_m2_7",
+    "lvmi_h_g_m",
+    "rwt",
+    "geometry",
+    "edv_ml",
+    "edv_source",
+    "edv_index_ml_m2",
+    "concentricity_g_ml23",
+    "geometry_8",
+    "lvmi_grade",
+    "rwt_grade",
+    "lvidd_grade",
+    "ivsd_grade",
+    "pwd_grade",
+    "fs_pct",
+    "edv_teichholz_ml",
+    "esv_teichholz_ml",
+    "sv_teichholz_ml",
+    "ef_teichholz_pct",
+    "es_pressure_mmhg",
+    "mess_kdyn_cm2",
+    "cess_kdyn_cm2",
+    "midwall_fs_pct",
+    "midwall_fs_predicted_pct",
+    "midwall_fs_stress_corrected_pct",
+    "vcf_circ_s",
+    "vcfc_circ_s",
+    "stroke_work_g_m",
+    "lv_mass_predicted_g",
+    "lv_mass_appropriateness_pct",
+    "flags",
+)
