@@ -1,0 +1,1 @@
+"""Bundled reference sets (CSV); see wallstress.references for the format."""

@@ -1,0 +1,303 @@
+"""Command line: each command is a thin wrapper over a public function that returns data.
+
+Exit codes: 0 the batch ran (rows may carry flags); 1 the input cannot be used (one line saying why
+and what to do); 2 usage; 3 with --strict when any row has an error finding.
+"""
+
+from __future__ import annotations
+
+import sys
+import traceback
+from enum import Enum
+from pathlib import Path
+
+import typer
+
+from . import __version__
+from .errors import WallstressError
+from .options import Options
+
+app = typer.Typer(
+    add_completion=False,
+    no_args_is_help=True,
+    help=(
+        "LV mass, geometry, end-systolic wall stress and chamber function for echocardiographic study "
+        "lists. Supports, never replaces, a qualified clinician's judgement and the local lab's "
+        "protocols and reference values."
+    ),
+)
+
+EXIT_INPUT, EXIT_STRICT = 1, 3
+_state = {"debug": False}
+
+
+class Bsa(str, Enum):
+    dubois = "dubois"
+    mosteller = "mosteller"
+    haycock = "haycock"
+    gehan_george = "gehan_george"
+    boyd = "boyd"
+
+
+class Mass(str, Enum):
+    ase_corrected = "ase_corrected"
+    penn = "penn"
+    area_length = "area_length"
+    truncated_ellipsoid = "truncated_ellipsoid"
+
+
+class Rwt(str, Enum):
+    posterior = "posterior"
+    septal_posterior = "septal_posterior"
+
+
+class EsPressure(str, Enum):
+    cuff_sbp = "cuff_sbp"
+    scaled_sbp = "scaled_sbp"
+    weighted_mean = "weighted_mean"
+    measured = "measured"
+
+
+class StressConstant(str, Enum):
+    published = "published"
+    exact = "exact"
+
+
+class Units(str, Enum):
+    auto = "auto"
+    mm = "mm"
+    cm = "cm"
+
+
+def _fail(exc: BaseException) -> None:
+    if _state["debug"]:
+        traceback.print_exc()
+    message = str(exc).strip().splitlines()[0] if str(exc).strip() else exc.__class__.__name__
+    typer.echo(f"wallstress: {message}", err=True)
+    raise typer.Exit(getattr(exc, "exit_code", EXIT_INPUT))
+
+
+def _guard(fn, *args, **kwargs):
+    try:
+        return fn(*args, **kwargs)
+    except WallstressError as exc:
+        _fail(exc)
+    except ValueError as exc:  # a wrong option value that slipped past typer
+        if _state["debug"]:
+            traceback.print_exc()
+        typer.echo(f"wallstress: {exc}", err=True)
+        raise typer.Exit(2) from None
+    except KeyboardInterrupt:
+        typer.echo("wallstress: interrupted; no partial output was left", err=True)
+        raise typer.Exit(130) from None
+    except Exception as exc:  # never a bare traceback for a user's file
+        if _state["debug"]:
+            traceback.print_exc()
+        typer.echo(
+            f"wallstress: unexpected problem ({exc.__class__.__name__}: {exc}); run again with --debug "
+            "and report it with the traceback",
+            err=True,
+        )
+        raise typer.Exit(EXIT_INPUT) from None
+
+
+def _options(reference, bsa, mass, rwt, es_pressure, stress_constant, units, sheet, columns) -> Options:
+    from .jobs import read_columns_map
+
+    return Options(
+        reference=reference,
+        bsa_method=bsa.value,
+        mass_method=mass.value,
+        rwt_method=rwt.value,
+        es_pressure=es_pressure.value,
+        stress_constant=stress_constant.value,
+        units=units.value,
+        sheet=sheet,
+        columns=read_columns_map(columns) if columns else {},
+    )
+
+
+REF = typer.Option("ase_eacvi_2015", "--reference", "-r", help="Reference set name or a set CSV (see 'references').")
+BSA = typer.Option(Bsa.dubois, "--bsa", help="Body surface area formula.")
+MASS = typer.Option(Mass.ase_corrected, "--mass", help="LV mass formula (2D ones need the area columns).")
+RWT = typer.Option(Rwt.posterior, "--rwt", help="Relative wall thickness: 2*PWd/LVIDd or (IVSd+PWd)/LVIDd.")
+ESP = typer.Option(EsPressure.cuff_sbp, "--es-pressure", help="End-systolic pressure estimate.")
+SC = typer.Option(StressConstant.published, "--stress-constant", help="Published constants (0.334, 1.35) or exact mmHg->kdyn/cm2.")
+UNITS = typer.Option(Units.auto, "--units", help="Unit of LV dimensions when headers do not say.")
+SHEET = typer.Option(None, "--sheet", help="Sheet to read (default: first sheet with recognised headers).")
+COLUMNS = typer.Option(None, "--columns", help="Your headers -> our fields: CSV 'header,field' or JSON.")
+QUIET = typer.Option(False, "--quiet", "-q", help="No progress or summary on the terminal.")
+
+
+@app.callback()
+def _root(
+    debug: bool = typer.Option(False, "--debug", help="Show a traceback when something fails."),
+    version: bool = typer.Option(False, "--version", help="Print the version and exit."),
+):
+    _state["debug"] = debug
+    if version:
+        typer.echo(f"wallstress {__version__}")
+        raise typer.Exit(0)
+
+
+@app.command()
+def analyse(
+    studies: Path = typer.Argument(..., help="Study list: .xlsx, .csv, .ods or .parquet."),
+    out: Path = typer.Option(None, "--out", "-o", help="Output .xlsx, .csv or .parquet (default: beside the input)."),
+    reference: str = REF,
+    bsa: Bsa = BSA,
+    mass: Mass = MASS,
+    rwt: Rwt = RWT,
+    es_pressure: EsPressure = ESP,
+    stress_constant: StressConstant = SC,
+    units: Units = UNITS,
+    sheet: str = SHEET,
+    columns: Path = COLUMNS,
+    in_place: bool = typer.Option(False, "--in-place", help="Write into your workbook (after a backup copy beside it)."),
+    strict: bool = typer.Option(False, "--strict", help="Exit 3 when any row has an error finding."),
+    escape_formulas: bool = typer.Option(False, "--escape-formulas", help="In CSV output, prefix formula-like text with a quote."),
+    quiet: bool = QUIET,
+):
+    """Every measure for every study, with flags and a methods record."""
+    from .jobs import analyse_file
+
+    options = _guard(_options, reference, bsa, mass, rwt, es_pressure, stress_constant, units, sheet, columns)
+    result = _guard(analyse_file, studies, out, options, in_place=in_place,
+                    escape_formulas=escape_formulas, quiet=quiet)
+    counts = result.analysis.methods["counts"]
+    if not quiet:
+        typer.echo(
+            f"{counts['rows']} studies: {counts['rows_flagged']} flagged, {counts['rows_with_errors']} with "
+            f"errors (see the findings)."
+        )
+        for note in result.notes:
+            typer.echo(f"note: {note}")
+        for p in result.written:
+            typer.echo(f"wrote {p}")
+    if strict and counts["rows_with_errors"]:
+        raise typer.Exit(EXIT_STRICT)
+
+
+@app.command()
+def track(
+    studies: Path = typer.Argument(..., help="Study list with patient_id and study_date, several studies per patient."),
+    out: Path = typer.Option(..., "--out", "-o", help="Output .xlsx (patients, visits, transitions), .csv or .parquet."),
+    reference: str = REF,
+    within_sd: float = typer.Option(None, "--within-sd", help="Your lab's within-subject SD of LV mass [g] (LSC = 1.96*sqrt(2)*SD)."),
+    same_day: str = typer.Option("mean", "--same-day", help="Studies of one patient on one day: 'mean' or 'last'."),
+    units: Units = UNITS,
+    sheet: str = SHEET,
+    columns: Path = COLUMNS,
+    quiet: bool = QUIET,
+):
+    """Per-patient change against reproducibility, slopes and geometry transitions."""
+    from .jobs import track_file
+
+    options = _guard(_options, reference, Bsa.dubois, Mass.ase_corrected, Rwt.posterior, EsPressure.cuff_sbp,
+                     StressConstant.published, units, sheet, columns)
+    result = _guard(track_file, studies, out, options, within_subject_sd_g=within_sd, same_day=same_day)
+    if not quiet:
+        for line in result.notes:
+            typer.echo(line)
+        for p in result.written:
+            typer.echo(f"wrote {p}")
+
+
+@app.command()
+def report(
+    studies: Path = typer.Argument(..., help="Study list (one or many studies per patient)."),
+    out: Path = typer.Option(..., "--out", "-o", help="Output .html (one self-contained file)."),
+    reference: str = REF,
+    figures: Path = typer.Option(None, "--figures", help="Also write each figure as PNG and SVG here."),
+    units: Units = UNITS,
+    sheet: str = SHEET,
+    columns: Path = COLUMNS,
+    quiet: bool = QUIET,
+):
+    """Pictures and per-patient pages in one HTML file that works offline."""
+    from .jobs import report_file
+
+    options = _guard(_options, reference, Bsa.dubois, Mass.ase_corrected, Rwt.posterior, EsPressure.cuff_sbp,
+                     StressConstant.published, units, sheet, columns)
+    path = _guard(report_file, studies, out, options, figures_dir=figures)
+    if not quiet:
+        typer.echo(f"wrote {path}")
+
+
+@app.command()
+def template(out: Path = typer.Option(..., "--out", "-o", help="Output .xlsx")):
+    """An empty study list with the expected headers, units and input hints."""
+    from .template import write_template
+
+    path = _guard(write_template, out)
+    typer.echo(f"wrote {path}")
+
+
+@app.command()
+def references(name: str = typer.Argument(None, help="A set name or set CSV; omit to list the bundled sets.")):
+    """The cut-offs in force, each with its source and whether it was checked."""
+    from .references import list_sets, load_set
+
+    if not name:
+        for n in list_sets():
+            s = load_set(n)
+            typer.echo(f"{n:<20} {s.title}")
+        typer.echo("\nShow one with: wallstress references NAME")
+        return
+    s = _guard(load_set, name)
+    typer.echo(f"{s.name}: {s.title}\ngeometry decided by {s.mass_index} and rwt\n")
+    for r in s.rows[s.rows["kind"] != "setting"].itertuples():
+        sex = r.sex if isinstance(r.sex, str) else "both"
+        flag = "" if r.verified in ("published", "lab") else f"  [{r.verified}]"
+        if r.kind == "cutoff":
+            typer.echo(f"  {r.measure:<18} {sex:<4} {r.grade:<13} {r.comparison:>2} {r.value:g} {r.unit if isinstance(r.unit, str) else ''}{flag}")
+        else:
+            typer.echo(f"  {r.measure}.{r.grade} = {r.value:g}{flag}")
+    typer.echo("\nSources:")
+    for src in dict.fromkeys(s.rows.loc[s.rows["kind"] != "setting", "source"]):
+        typer.echo(f"  - {src}")
+    typer.echo("\n[from_memory] values were recalled, not checked against the published text.")
+
+
+@app.command()
+def calibrate(
+    normals: Path = typer.Argument(..., help="Study list of your lab's healthy subjects."),
+    out: Path = typer.Option(..., "--out", "-o", help="Output reference set .csv (use it with --reference)."),
+    base: str = typer.Option("ase_eacvi_2015", "--base", help="Set whose rows you do not fit are kept from."),
+    units: Units = UNITS,
+    sheet: str = SHEET,
+    columns: Path = COLUMNS,
+):
+    """Your lab's own reference limits and stress-shortening line from its healthy subjects."""
+    from .jobs import calibrate_file
+
+    options = _guard(_options, base, Bsa.dubois, Mass.ase_corrected, Rwt.posterior, EsPressure.cuff_sbp,
+                     StressConstant.published, units, sheet, columns)
+    result = _guard(calibrate_file, normals, out, options)
+    for line in result.notes:
+        typer.echo(line)
+    for p in result.written:
+        typer.echo(f"wrote {p}")
+
+
+@app.command()
+def demo(folder: Path = typer.Argument(Path("wallstress-demo"), help="Where to write the demo outputs.")):
+    """The whole job on the bundled, invented sample studies."""
+    from .jobs import run_demo
+
+    result = _guard(run_demo, folder)
+    for line in result.notes:
+        typer.echo(line)
+    typer.echo(f"\nAll outputs are in {folder}/")
+
+
+def main() -> None:
+    try:
+        app()
+    except KeyboardInterrupt:
+        sys.stderr.write("wallstress: interrupted\n")
+        sys.exit(130)
+
+
+if __name__ == "__main__":
+    main()

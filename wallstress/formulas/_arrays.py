@@ -1,0 +1,88 @@
+"""Array plumbing shared by the formula modules (numpy only, no pandas import).
+
+A formula takes scalars, ndarrays or pandas Series. ``as_arrays`` turns every input into a float
+ndarray (missing values, including pandas ``NA``, become NaN) and remembers the first Series it saw;
+``restore`` gives the result back in the caller's type: a Series with that Series' index, a 0-d
+result as a numpy float, anything else as an ndarray.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+
+def _is_series(value: object) -> bool:
+    # Duck-typed so that the formula modules never import pandas.
+    return hasattr(value, "index") and hasattr(value, "to_numpy") and getattr(value, "ndim", 0) == 1
+
+
+def _to_float(value: object) -> np.ndarray:
+    if value is None:
+        return np.asarray(np.nan)
+    if hasattr(value, "to_numpy"):
+        try:
+            return value.to_numpy(dtype=float, na_value=np.nan)
+        except (TypeError, ValueError):
+            return np.asarray(value.to_numpy(dtype=object), dtype=float)
+    return np.asarray(value, dtype=float)
+
+
+def as_arrays(*values: object) -> tuple[list[np.ndarray], object | None]:
+    """Float arrays of ``values`` and the Series (if any) whose index the result keeps.
+
+    Raises
+    ------
+    ValueError
+        When two Series inputs carry different indexes (positional arithmetic would pair the wrong
+        rows): align them first, e.g. ``b.reindex(a.index)``.
+    """
+    template = None
+    for value in values:
+        if _is_series(value):
+            if template is None:
+                template = value
+            elif not value.index.equals(template.index):
+                raise ValueError(
+                    "Series inputs have different indexes; align them first "
+                    "(e.g. other.reindex(first.index)) so each row pairs with its own values"
+                )
+    return [_to_float(v) for v in values], template
+
+
+def restore(result: np.ndarray, template: object | None):
+    """``result`` in the caller's type (see module docstring)."""
+    result = np.asarray(result, dtype=float)
+    if template is not None:
+        if result.shape != (len(template),):
+            result = np.broadcast_to(result, (len(template),)).copy()
+        return type(template)(result, index=template.index)
+    if result.ndim == 0:
+        return np.float64(result[()])
+    return result
+
+
+def positive(x: np.ndarray) -> np.ndarray:
+    """``x`` where it is finite and > 0, NaN elsewhere (lengths, pressures, volumes, times)."""
+    with np.errstate(invalid="ignore"):
+        return np.where(np.isfinite(x) & (x > 0), x, np.nan)
+
+
+def non_negative(x: np.ndarray) -> np.ndarray:
+    """``x`` where it is finite and >= 0, NaN elsewhere."""
+    with np.errstate(invalid="ignore"):
+        return np.where(np.isfinite(x) & (x >= 0), x, np.nan)
+
+
+def finite(x: np.ndarray) -> np.ndarray:
+    """``x`` where it is finite, NaN elsewhere (+/-inf becomes NaN)."""
+    return np.where(np.isfinite(x), x, np.nan)
+
+
+def check_choice(name: str, value: str, valid: Sequence[str]) -> str:
+    """Return ``value`` if it is one of ``valid``; otherwise raise a ValueError that lists them."""
+    if value not in valid:
+        listed = ", ".join(repr(v) for v in valid)
+        raise ValueError(f"{name}={value!r} is not a known method; pass one of: {listed}")
+    return value

@@ -1,0 +1,214 @@
+"""File-level jobs: read -> analyse / track -> write. Each returns data; the CLI only prints."""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+import pandas as pd
+
+from .errors import InputError, OutputError
+from .options import Options
+from .pipeline import analyse_with_findings
+from .progress import Progress
+from .readers import read_studies
+from .result import Analysis
+
+
+@dataclass
+class JobResult:
+    analysis: Analysis | None
+    written: list[Path] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def rows_with_errors(self) -> int:
+        return int(self.analysis.methods["counts"]["rows_with_errors"]) if self.analysis else 0
+
+
+def read_columns_map(path: str | Path | None) -> dict:
+    """A lab's header map: JSON object {header: field} or a CSV with columns header,field."""
+    if not path:
+        return {}
+    p = Path(path)
+    if not p.is_file():
+        raise InputError(f"{p}: column map not found; give a CSV with columns header,field or a JSON object")
+    try:
+        if p.suffix.lower() == ".json":
+            data = json.loads(p.read_text(encoding="utf-8-sig"))
+            if not isinstance(data, dict):
+                raise ValueError("not an object")
+            return {str(k): str(v) for k, v in data.items()}
+        t = pd.read_csv(p, dtype=str, encoding="utf-8-sig")
+    except Exception as exc:
+        raise InputError(f"{p}: column map cannot be read ({exc}); use CSV columns header,field or a JSON object") from exc
+    cols = [c.strip().lower() for c in t.columns]
+    if cols[:2] != ["header", "field"]:
+        raise InputError(f"{p}: column map needs the columns 'header' and 'field' (found {list(t.columns)})")
+    return dict(zip(t.iloc[:, 0].astype(str), t.iloc[:, 1].astype(str).str.strip()))
+
+
+def _source_methods(analysis: Analysis, study) -> None:
+    analysis.methods["input"] = {
+        "file": study.path.name,
+        "sha256": study.sha256,
+        "format": study.format,
+        "sheet": study.sheet,
+        "header_row": study.header_row,
+    }
+
+
+def analyse_file(
+    path: str | Path,
+    out: str | Path | None = None,
+    options: Options | None = None,
+    *,
+    in_place: bool = False,
+    escape_formulas: bool = False,
+    quiet: bool = True,
+) -> JobResult:
+    """Analyse one study-list file and write results next to it (never over it)."""
+    options = options or Options()
+    path = Path(path)
+    out_path = Path(out) if out else default_output(path)
+    if in_place:
+        out_path = path
+    elif out_path.resolve() == path.resolve():
+        raise OutputError(f"{out_path}: this would overwrite your input; choose another -o or pass --in-place")
+    from .writers import write_results
+
+    with Progress(4, enabled=None if not quiet else False) as bar:
+        study = read_studies(path, sheet=options.sheet)
+        bar.step(f"read {len(study.table)} rows")
+        analysis = analyse_with_findings(study.table, options, prior_findings=study.findings)
+        _source_methods(analysis, study)
+        bar.step("measures computed")
+        written = write_results(analysis, out_path, study, in_place=in_place, escape_formulas=escape_formulas)
+        bar.step("written")
+    notes = list(getattr(written, "notes", []) or [])
+    paths = list(getattr(written, "paths", written))
+    bar.step("done")
+    return JobResult(analysis, paths, notes)
+
+
+def default_output(path: Path) -> Path:
+    """``studies.xlsx`` -> ``studies.wallstress.xlsx`` (csv and ods -> xlsx; parquet stays parquet)."""
+    suffix = path.suffix.lower()
+    ext = ".parquet" if suffix == ".parquet" else ".xlsx"
+    return path.with_name(f"{path.stem}.wallstress{ext}")
+
+
+def with_options(options: Options, **changes) -> Options:
+    """A copy of options with the given non-None changes."""
+    return replace(options, **{k: v for k, v in changes.items() if v is not None})
+
+
+def _read_and_analyse(path, options: Options):
+    study = read_studies(Path(path), sheet=options.sheet)
+    analysis = analyse_with_findings(study.table, options, prior_findings=study.findings)
+    _source_methods(analysis, study)
+    return study, analysis
+
+
+def track_file(
+    path: str | Path,
+    out: str | Path,
+    options: Options | None = None,
+    *,
+    within_subject_sd_g: float | None = None,
+    same_day: str = "mean",
+) -> JobResult:
+    """Follow-up of a clinic cohort: patients, visits, transitions and methods, written to ``out``."""
+    from .tracking import track, tracking_sheets
+    from .writers import write_sheets
+
+    options = options or Options()
+    path, out = Path(path), Path(out)
+    if out.resolve() == path.resolve():
+        raise OutputError(f"{out}: this would overwrite your input; choose another -o")
+    _, analysis = _read_and_analyse(path, options)
+    tracking = track(analysis, options, within_subject_sd_g=within_subject_sd_g, same_day=same_day)
+    methods = {**analysis.methods, "tracking": tracking.methods}
+    written = write_sheets(out, tracking_sheets(tracking), methods)
+    p = tracking.patients
+    notes = [f"{len(p)} patients, {len(tracking.visits)} visits"]
+    if "verdict" in p.columns:
+        for verdict, count in p["verdict"].value_counts().items():
+            notes.append(f"  {verdict}: {count}")
+    return JobResult(analysis, list(getattr(written, "paths", written)), notes)
+
+
+def report_file(
+    path: str | Path, out: str | Path, options: Options | None = None, *, figures_dir=None
+) -> Path:
+    """One self-contained HTML report; per-patient pages when patients have several studies."""
+    from .report import write_report
+    from .tracking import track
+
+    options = options or Options()
+    _, analysis = _read_and_analyse(path, options)
+    tracking = None
+    frame = analysis.canonical
+    if "patient_id" in frame.columns and frame["patient_id"].duplicated().any():
+        tracking = track(analysis, options)
+    return write_report(analysis, Path(out), tracking=tracking, figures_dir=figures_dir)
+
+
+def calibrate_file(path: str | Path, out: str | Path, options: Options | None = None) -> JobResult:
+    """A lab's own reference set from its healthy subjects."""
+    from .calibrate import calibrate, write_set
+
+    options = options or Options()
+    _, analysis = _read_and_analyse(path, options)
+    cal = calibrate(analysis, base_set=options.reference, lab_name=Path(path).stem)
+    written = write_set(cal, Path(out))
+    return JobResult(analysis, [written], list(cal.notes))
+
+
+def sample_dir() -> Path:
+    """The bundled, invented sample studies (installed with the package)."""
+    from importlib import resources
+
+    folder = Path(str(resources.files("wallstress.sample_studies")))
+    if not (folder / "fernhill_echo_lab.xlsx").is_file():
+        raise InputError(f"the sample studies are missing from {folder}; reinstall wallstress")
+    return folder
+
+
+def run_demo(folder: str | Path = "wallstress-demo") -> JobResult:
+    """The whole job on the invented sample studies: analyse, track, report, calibrate."""
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    samples = sample_dir()
+    notes: list[str] = []
+    written: list[Path] = []
+    lab = analyse_file(samples / "fernhill_echo_lab.xlsx", folder / "fernhill_echo_lab.wallstress.xlsx")
+    c = lab.analysis.methods["counts"]
+    notes.append(f"echo lab study list: {c['rows']} studies, {c['rows_flagged']} flagged, "
+                 f"{c['rows_with_errors']} with errors -> {lab.written[0].name}")
+    written += lab.written
+    fu = track_file(samples / "fernhill_followup.xlsx", folder / "fernhill_followup.tracking.xlsx")
+    notes.append(f"follow-up clinic: {fu.notes[0]} -> {fu.written[0].name}")
+    notes += fu.notes[1:]
+    written += fu.written
+    rep = report_file(samples / "fernhill_followup.xlsx", folder / "fernhill_followup.report.html",
+                      figures_dir=folder / "figures")
+    notes.append(f"report: {rep.name} (figures in figures/)")
+    written.append(rep)
+    lab_rep = report_file(samples / "fernhill_echo_lab.xlsx", folder / "fernhill_echo_lab.report.html")
+    notes.append(f"report: {lab_rep.name}")
+    try:
+        from .calibrate import calibrate, write_set
+
+        _, normals = _read_and_analyse(samples / "fernhill_normals.csv", Options())
+        cal = calibrate(normals, lab_name="fernhill_normals", allow_small=True)
+        p = write_set(cal, folder / "fernhill_own_limits.csv")
+        notes.append(f"lab's own limits from {normals.n_rows} healthy volunteers -> {p.name} "
+                     "(use it with --reference)")
+        written.append(p)
+    except InputError as exc:
+        notes.append(f"calibrate: {exc}")
+    notes.append("These are invented data. wallstress supports, never replaces, a qualified clinician's "
+                 "judgement and the local lab's protocols and reference values.")
+    return JobResult(lab.analysis, written, notes)

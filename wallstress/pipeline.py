@@ -1,0 +1,245 @@
+"""analyse(): map -> convert -> validate -> compute -> classify, on a DataFrame. No file I/O here.
+
+One direction of data flow: the user's table is read, never written; the measures are computed from
+the canonical copy; the result is the user's columns, unchanged and in order, followed by ours.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from . import __version__, classify, findings as fnd
+from .formulas import body_size, function, mass, stress
+from .mapping import map_columns
+from .methods import build_methods
+from .options import Options
+from .references import load_set
+from .result import Analysis
+from .schema import OUTPUT_COLUMNS
+from .validate import validate
+
+LINEAR_METHODS = mass.LINEAR_MASS_METHODS
+AREA_METHODS = mass.AREA_MASS_METHODS
+ES_PRESSURE_CHOICES = (*stress.ES_PRESSURE_METHODS, "measured")
+
+
+def _check_options(o: Options) -> None:
+    checks = (
+        ("bsa_method", o.bsa_method, body_size.BSA_METHODS),
+        ("mass_method", o.mass_method, LINEAR_METHODS + AREA_METHODS),
+        ("rwt_method", o.rwt_method, mass.RWT_METHODS),
+        ("es_pressure", o.es_pressure, ES_PRESSURE_CHOICES),
+        ("stress_constant", o.stress_constant, stress.STRESS_CONSTANTS),
+        ("units", o.units, ("auto", "mm", "cm")),
+    )
+    for name, value, valid in checks:
+        if value not in valid:
+            raise ValueError(f"{name}={value!r} is not known; use one of: {', '.join(valid)}")
+
+
+def analyse(df: pd.DataFrame, options: Options | None = None) -> pd.DataFrame:
+    """Every measure for every row of a study list.
+
+    Parameters
+    ----------
+    df : DataFrame
+        One row per echocardiogram, under canonical names (``schema.FIELDS``) or headers that can be
+        mapped (``LVIDd (mm)``, ``Septum``...). Columns it does not know are carried through.
+    options : Options, optional
+        Reference set, formulas and units; defaults as in :class:`Options`.
+
+    Returns
+    -------
+    DataFrame
+        The input columns, unchanged, followed by ``schema.OUTPUT_COLUMNS``; one row per input row, in
+        order. ``flags`` lists each row's finding codes. Use :func:`analyse_with_findings` for the
+        findings table and the methods record.
+    """
+    return analyse_with_findings(df, options).table
+
+
+def analyse_with_findings(
+    df: pd.DataFrame, options: Options | None = None, *, prior_findings: pd.DataFrame | None = None
+) -> Analysis:
+    """Like :func:`analyse`, returning the whole :class:`~wallstress.result.Analysis`.
+
+    ``prior_findings`` (e.g. from the reader: error values in cells) join the row flags.
+    """
+    options = options or Options()
+    _check_options(options)
+    refset = load_set(options.reference)
+    mapped = map_columns(df, options)
+    labels = {m["field"]: m["source_column"] for m in mapped.mapping}
+    canonical, vfind = validate(mapped.canonical, labels)
+    canonical.index = pd.RangeIndex(len(df))
+    outputs, cfind, used = compute(canonical, options, refset)
+    findings = fnd.concat([prior_findings, mapped.findings, vfind, cfind])
+    outputs["flags"] = fnd.flags_per_row(findings, len(df)).to_numpy()
+    outputs = outputs[list(OUTPUT_COLUMNS)]
+    table = _append(df, outputs)
+    methods = build_methods(options, refset, used, mapped, findings, len(df), version=__version__)
+    return Analysis(table=table, canonical=canonical, outputs=outputs, findings=findings, methods=methods)
+
+
+def _append(df: pd.DataFrame, outputs: pd.DataFrame) -> pd.DataFrame:
+    """The user's columns, then ours; an output name the user already has gets a ``ws_`` prefix."""
+    taken = {str(c) for c in df.columns}
+    renamed = outputs.rename(columns={c: f"ws_{c}" for c in outputs.columns if c in taken})
+    renamed.index = df.index
+    return pd.concat([df, renamed], axis=1)
+
+
+def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataFrame, dict]:
+    """All measures from a validated canonical table (vectorised). Returns (outputs, findings, used).
+
+    ``used`` records which formula and which coefficients each measure came from (for methods).
+    """
+    n = len(c)
+
+    def get(name):
+        return c[name].to_numpy(dtype=float) if name in c.columns else np.full(n, np.nan)
+
+    sex = c["sex"].to_numpy(dtype=object) if "sex" in c.columns else np.full(n, None, dtype=object)
+    parts: list[pd.DataFrame] = []
+    used: dict[str, dict] = {}
+
+    def flag(mask, code, severity, message, field=""):
+        mask = np.asarray(mask, dtype=bool)
+        if mask.any():
+            parts.append(fnd.make(np.flatnonzero(mask), code=code, severity=severity, message=message,
+                                  column=field, field=field))
+
+    out: dict[str, np.ndarray] = {}
+    height, weight = get("height_cm"), get("weight_kg")
+    ivsd, lvidd, pwd = get("ivsd_cm"), get("lvidd_cm"), get("pwd_cm")
+    lvids, pws = get("lvids_cm"), get("pws_cm")
+
+    # body size
+    bsa = body_size.bsa_m2(height, weight, method=o.bsa_method)
+    out["bsa_m2"] = bsa
+    used["bsa_m2"] = {"method": o.bsa_method}
+
+    # LV mass
+    linear_method = o.mass_method if o.mass_method in LINEAR_METHODS else "ase_corrected"
+    lvm = mass.lv_mass_linear_g(ivsd, lvidd, pwd, method=linear_method)
+    method_col = np.where(np.isnan(lvm), "", linear_method).astype(object)
+    if o.mass_method in AREA_METHODS:
+        if o.mass_method == "area_length":
+            lvm2d = mass.lv_mass_area_length_g(get("epi_area_cm2"), get("endo_area_cm2"), get("lv_length_cm"))
+        else:
+            lvm2d = mass.lv_mass_truncated_ellipsoid_g(get("epi_area_cm2"), get("endo_area_cm2"),
+                                                       get("lv_semimajor_cm"), get("lv_truncated_semimajor_cm"))
+        has2d = ~np.isnan(lvm2d)
+        flag(~has2d & ~np.isnan(lvm), "mass_linear_fallback", "note",
+             f"No complete 2D measurements for {o.mass_method}: LV mass by the linear "
+             f"{linear_method} formula instead.", "lv_mass_g")
+        lvm = np.where(has2d, lvm2d, lvm)
+        method_col = np.where(has2d, o.mass_method, method_col).astype(object)
+        used["lv_mass_g"] = {"method": o.mass_method, "fallback": linear_method}
+    else:
+        used["lv_mass_g"] = {"method": linear_method}
+    out["lv_mass_g"] = lvm
+    out["lv_mass_method"] = method_col
+
+    h27 = body_size.height_power(height, 2.7)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out["lvmi_bsa_g_m2"] = lvm / bsa
+        out["lvmi_h27_g_m2_7"] = lvm / h27
+        out["lvmi_h_g_m"] = lvm / body_size.height_power(height, 1.0)
+    rwt = mass.relative_wall_thickness(lvidd, pwd, ivsd, method=o.rwt_method)
+    out["rwt"] = rwt
+    used["rwt"] = {"method": o.rwt_method}
+
+    # geometry, four groups
+    out["geometry"] = classify.geometry_4(out[refset.mass_index], rwt, sex, refset)
+    used["geometry"] = {"method": "ganau_1992", "mass_index": refset.mass_index}
+
+    # volumes (measured where present, else Teichholz)
+    edv_t = function.teichholz_volume_ml(lvidd)
+    esv_t = function.teichholz_volume_ml(lvids)
+    edv_meas, esv_meas = get("lvedv_ml"), get("lvesv_ml")
+    have_meas = ~np.isnan(edv_meas)
+    edv = np.where(have_meas, edv_meas, edv_t)
+    out["edv_ml"] = edv
+    out["edv_source"] = np.where(have_meas, "measured", np.where(np.isnan(edv_t), "", "teichholz")).astype(object)
+    flag(~have_meas & ~np.isnan(edv_t), "edv_from_teichholz", "note",
+         "End-diastolic volume estimated by Teichholz from LVIDd (no measured volume): volume-based "
+         "classes are less reliable than with biplane volumes.", "edv_ml")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out["edv_index_ml_m2"] = edv / bsa
+    out["concentricity_g_ml23"] = mass.concentricity_g_ml23(lvm, edv)
+    out["geometry_8"] = classify.geometry_8(out[refset.mass_index], rwt, out["edv_index_ml_m2"], sex, refset)
+
+    # grades
+    for col, measure, values in (("lvmi_grade", "lvmi_bsa_g_m2", out["lvmi_bsa_g_m2"]),
+                                 ("rwt_grade", "rwt", rwt), ("lvidd_grade", "lvidd_cm", lvidd),
+                                 ("ivsd_grade", "ivsd_cm", ivsd), ("pwd_grade", "pwd_cm", pwd)):
+        out[col] = classify.grade(values, sex, refset, measure)
+
+    # chamber function
+    fs = function.fractional_shortening_pct(lvidd, lvids)
+    out["fs_pct"] = fs
+    out["edv_teichholz_ml"] = edv_t
+    out["esv_teichholz_ml"] = esv_t
+    out["sv_teichholz_ml"] = edv_t - esv_t
+    out["ef_teichholz_pct"] = function.ejection_fraction_pct(edv_t, esv_t)
+    checks = refset.coefficients("linear_method_checks")
+    fs_lo, fs_hi = checks["fs_min_pct"].value, checks["fs_max_pct"].value
+    with np.errstate(invalid="ignore"):
+        flag((fs < fs_lo) | (fs > fs_hi), "fs_out_of_range", "warning",
+             f"Fractional shortening outside {fs_lo:g}-{fs_hi:g} %: check the diameters (or the ventricle is "
+             "severely impaired or hyperdynamic).", "fs_pct")
+
+    # pressure and stress
+    sbp = stress.mean_of_readings(get("sbp_mmhg"), get("sbp_2_mmhg"), get("sbp_3_mmhg"))
+    dbp = stress.mean_of_readings(get("dbp_mmhg"), get("dbp_2_mmhg"), get("dbp_3_mmhg"))
+    if o.es_pressure == "measured":
+        measured = get("es_pressure_measured_mmhg")
+        esp = np.where(np.isnan(measured), sbp, measured)
+        flag(np.isnan(measured) & ~np.isnan(sbp), "es_pressure_from_cuff", "note",
+             "No measured end-systolic pressure: cuff systolic used instead.", "es_pressure_mmhg")
+    else:
+        esp = stress.es_pressure_mmhg(sbp, dbp, method=o.es_pressure)
+    out["es_pressure_mmhg"] = esp
+    used["es_pressure_mmhg"] = {"method": o.es_pressure, "readings": "mean of the cuff readings present"}
+    out["mess_kdyn_cm2"] = stress.meridional_es_stress_kdyn_cm2(esp, lvids, pws, constant=o.stress_constant)
+    cess = stress.circumferential_es_stress_kdyn_cm2(esp, lvids, pws, constant=o.stress_constant)
+    out["cess_kdyn_cm2"] = cess
+    used["mess_kdyn_cm2"] = used["cess_kdyn_cm2"] = {"constant": o.stress_constant}
+
+    # midwall shortening and its stress correction
+    mfs = function.midwall_fs_pct(ivsd, lvidd, pwd, lvids)
+    line = refset.coefficients("midwall_stress_line")
+    pred = function.predicted_from_line(cess, line["intercept_pct"].value, line["slope_pct_per_kdyn_cm2"].value)
+    out["midwall_fs_pct"] = mfs
+    out["midwall_fs_predicted_pct"] = pred
+    out["midwall_fs_stress_corrected_pct"] = function.stress_corrected_pct(mfs, pred)
+    used["midwall_fs_predicted_pct"] = {"line": {k: v.value for k, v in line.items()},
+                                        "verified": sorted({v.verified for v in line.values()})}
+
+    et, hr = get("ejection_time_ms"), get("hr_bpm")
+    out["vcf_circ_s"] = function.vcf_circ_s(fs, et)
+    out["vcfc_circ_s"] = function.vcfc_circ_s(fs, et, hr)
+
+    # appropriateness of LV mass (stroke work from measured volumes where both present)
+    esv_meas_ok = ~np.isnan(edv_meas) & ~np.isnan(esv_meas)
+    sv = np.where(esv_meas_ok, edv_meas - esv_meas, edv_t - esv_t)
+    sw = stress.stroke_work_g_m(sbp, sv)
+    out["stroke_work_g_m"] = sw
+    coef = refset.coefficients("mass_prediction")
+    male = np.where(sex == "M", True, np.where(sex == "F", False, np.nan)).astype(float)
+    pred_lvm = function.predicted_lv_mass_g(height, sw, male, {k: v.value for k, v in coef.items()})
+    out["lv_mass_predicted_g"] = pred_lvm
+    appr = function.appropriateness_pct(lvm, pred_lvm)
+    out["lv_mass_appropriateness_pct"] = appr
+    limit = coef["inappropriate_above_pct"].value
+    with np.errstate(invalid="ignore"):
+        flag(appr > limit, "inappropriate_lv_mass", "warning",
+             f"LV mass is above {limit:g} % of the mass predicted from sex, height^2.7 and stroke work "
+             "(coefficients from memory: interpret with care).", "lv_mass_appropriateness_pct")
+    used["lv_mass_predicted_g"] = {"coefficients": {k: v.value for k, v in coef.items()},
+                                   "verified": sorted({v.verified for v in coef.values()})}
+
+    frame = pd.DataFrame(out, index=c.index)
+    return frame, fnd.concat(parts), used
