@@ -114,7 +114,8 @@ def test_lv_mass_truncated_ellipsoid_g_vs_schiller_1989():
         b = math.sqrt(a2 / math.pi)
         t = math.sqrt(a1 / math.pi) - b
         expected = MYOCARDIAL_DENSITY_2D_G_ML * (
-            _truncated_ellipsoid_volume_ml(b + t, a + t, d) - _truncated_ellipsoid_volume_ml(b, a, d)
+            _truncated_ellipsoid_volume_ml(b + t, a + t, d)
+            - _truncated_ellipsoid_volume_ml(b, a, d)
         )
         assert lv_mass_truncated_ellipsoid_g(a1, a2, a, d) == pytest.approx(expected, rel=1e-9)
 

@@ -185,9 +185,7 @@ def test_es_pressure_mmhg_scaled_sbp_vs_kelly_1992():
 
 def test_es_pressure_mmhg_weighted_mean_from_memory():
     """(2 SBP + DBP) / 3 (from memory). 120/80: (240 + 80)/3 = 106.667 mmHg (computed)."""
-    assert es_pressure_mmhg(120.0, 80.0, method="weighted_mean") == pytest.approx(
-        106.667, abs=5e-4
-    )
+    assert es_pressure_mmhg(120.0, 80.0, method="weighted_mean") == pytest.approx(106.667, abs=5e-4)
     # diastolic at or above systolic is not a blood pressure: NaN
     assert np.isnan(es_pressure_mmhg(120.0, 125.0, method="weighted_mean"))
 

@@ -154,9 +154,16 @@ def _status_words(status: str) -> str:
     return "unverified" if words in ("", "unverified") else f"unverified ({words})"
 
 
-def _new_figure(width_in: float, height_in: float) -> tuple[Figure, object]:
-    fig = Figure(figsize=(width_in, height_in), layout="constrained")
-    ax = fig.add_subplot()
+def _new_figure(width_in: float, height_in: float, margins=None) -> tuple[Figure, object]:
+    """A figure with one styled axes; ``margins`` (left, bottom, right, top) fixes the layout
+    instead of the slower constrained layout (used for the many per-patient figures)."""
+    if margins is None:
+        fig = Figure(figsize=(width_in, height_in), layout="constrained")
+        ax = fig.add_subplot()
+    else:
+        fig = Figure(figsize=(width_in, height_in))
+        left, bottom, right, top = margins
+        ax = fig.add_axes((left, bottom, right - left, top - bottom))
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
     ax.tick_params(labelsize=8, colors=_TEXT_COLOUR)
@@ -497,7 +504,7 @@ def lvmi_trend(
     _check_mass_index(mass_index)
     if len(visits):
         visits = visits.iloc[np.argsort(_sort_key(visits), kind="stable")]
-    fig, ax = _new_figure(7.0, 3.4)
+    fig, ax = _new_figure(7.4, 3.4, margins=(0.1, 0.15, 0.66, 0.9))
     t, t_label, is_date = _time_axis(visits) if len(visits) else (np.array([]), "Visit", False)
     y = _column(visits, mass_index)
     ok = np.isfinite(y)

@@ -90,7 +90,7 @@ def build_methods(options, refset, used: dict, mapped, findings, n_rows: int, *,
     """Assemble the methods record of one run (plain, JSON-serialisable types only)."""
     rowwise = findings[findings["row"] >= 0]
     errors = rowwise.loc[rowwise["severity"] == "error", "row"].nunique()
-    flagged = rowwise["row"].nunique()
+    flagged = rowwise.loc[rowwise["severity"].isin(["error", "warning"]), "row"].nunique()
     unverified = [
         f"{r['measure']} {r.get('sex', '')} {r.get('grade', '')}: {r['value']} ({r['source']}; {r['verified']})".replace("  ", " ")
         for r in refset.unverified().to_dict("records")
@@ -112,6 +112,7 @@ def build_methods(options, refset, used: dict, mapped, findings, n_rows: int, *,
         "column_mapping": [{k: _plain(v) for k, v in m.items()} for m in mapped.mapping],
         "unmapped_columns": [str(c) for c in getattr(mapped, "unmapped", [])],
         "counts": {"rows": int(n_rows), "rows_flagged": int(flagged), "rows_with_errors": int(errors),
+                   "rows_flagged_means": "rows with at least one warning or error (notes not counted)",
                    "findings": int(len(findings))},
         "unverified": unverified,
         "cautions": list(CAUTIONS),

@@ -72,6 +72,22 @@ COLUMN_LABELS: dict[str, str] = {
     "sbp_mmhg": "SBP [mmHg]",
     "dbp_mmhg": "DBP [mmHg]",
     "verdict": "Verdict",
+    "n_visits": "Visits",
+    "first_date": "First study",
+    "last_date": "Last study",
+    "span_years": "Follow-up [years]",
+    "lv_mass_first_g": "LV mass first [g]",
+    "lv_mass_last_g": "LV mass last [g]",
+    "lv_mass_change_g": "LV mass change [g]",
+    "lv_mass_real_change": "Change beyond LSC",
+    "lv_mass_slope_g_per_year": "LV mass slope [g/year]",
+    "lvmi_bsa_first_g_m2": "LVMI/BSA first [g/m²]",
+    "lvmi_bsa_last_g_m2": "LVMI/BSA last [g/m²]",
+    "geometry_first": "Geometry first",
+    "geometry_last": "Geometry last",
+    "lv_mass_change_from_baseline_g": "LV mass change from first [g]",
+    "lv_mass_real_change_from_baseline": "Beyond LSC",
+    "follow_up_year": "Follow-up year",
     "verdict_text": "In words",
     "flags": "Flags",
 }
@@ -95,6 +111,31 @@ VISIT_COLUMNS: tuple[str, ...] = (
     "lvmi_h27_g_m2_7",
     "rwt",
     "geometry",
+)
+VISIT_EXTRA_COLUMNS: tuple[str, ...] = (
+    "lv_mass_change_from_baseline_g",
+    "lv_mass_real_change_from_baseline",
+    "cess_kdyn_cm2",
+    "midwall_fs_pct",
+    "flags",
+)
+PATIENT_COLUMNS: tuple[str, ...] = (
+    "patient_id",
+    "sex",
+    "n_visits",
+    "first_date",
+    "last_date",
+    "span_years",
+    "lv_mass_first_g",
+    "lv_mass_last_g",
+    "lv_mass_change_g",
+    "lv_mass_real_change",
+    "lv_mass_slope_g_per_year",
+    "lvmi_bsa_first_g_m2",
+    "lvmi_bsa_last_g_m2",
+    "geometry_first",
+    "geometry_last",
+    "verdict",
 )
 CUTOFF_MEASURES: tuple[str, ...] = (
     "lvmi_bsa_g_m2",
@@ -597,7 +638,11 @@ def _cohort_section(tracking, reference_set, figs: _Figures) -> str:
                 "outlined diagonal is no change.",
             )
         )
-        parts.append(_table(transitions, index=not isinstance(transitions.index, pd.RangeIndex)))
+        matrix = fig_mod.transition_matrix(transitions).astype("int64")
+        matrix.index = [fig_mod.GEOMETRY_LABELS.get(i, i) for i in matrix.index]
+        matrix.columns = [fig_mod.GEOMETRY_LABELS.get(c, c) for c in matrix.columns]
+        matrix.index.name = "first \\ last"
+        parts.append(_table(matrix, index=True))
     if visits is not None and len(visits):
         mass_index = getattr(reference_set, "mass_index", None) or "lvmi_bsa_g_m2"
         if mass_index in visits.columns and "rwt" in visits.columns:
@@ -615,14 +660,39 @@ def _cohort_section(tracking, reference_set, figs: _Figures) -> str:
         ("prevalence_by_year", "Geometry by year of follow-up"),
         ("prevalence_by_sex", "Geometry by sex"),
     ):
-        t = _tracking_table(tracking, name)
+        t = _prevalence_wide(_tracking_table(tracking, name))
         if t is not None and len(t):
             parts.append(f"<h3>{html.escape(heading)}</h3>")
             parts.append(_table(t, index=not isinstance(t.index, pd.RangeIndex)))
     if patients is not None and len(patients):
-        parts.append("<h3>Patients</h3>" + _table(patients))
+        cols = [c for c in PATIENT_COLUMNS if c in patients.columns] or list(patients.columns)
+        parts.append("<h3>Patients</h3>" + _table(patients[cols]))
     parts.append("</section>")
     return "".join(parts)
+
+
+def _prevalence_wide(t):
+    """A long prevalence table (follow_up_year, geometry, n_patients, pct_of_seen[, sex]) as one
+    row per year (and sex) and one column per class, "n (pct %)"; other shapes pass through."""
+    need = {"follow_up_year", "geometry", "n_patients"}
+    if t is None or not need.issubset(t.columns):
+        return t
+    keys = [c for c in ("sex", "follow_up_year") if c in t.columns]
+    n = t["n_patients"].map(_fmt)
+    if "pct_of_seen" in t.columns:
+        n = n + " (" + t["pct_of_seen"].map(lambda v: f"{v:.0f}" if v == v else "") + " %)"
+    cell = t.assign(
+        _cell=n, geometry=t["geometry"].map(lambda g: fig_mod.GEOMETRY_LABELS.get(g, g))
+    )
+    wide = cell.pivot_table(index=keys, columns="geometry", values="_cell", aggfunc="first")
+    order = [fig_mod.GEOMETRY_LABELS.get(g, g) for g in (*fig_mod.GEOMETRY_CLASSES, "")]
+    wide = wide[
+        [c for c in order if c in wide.columns] + [c for c in wide.columns if c not in order]
+    ]
+    if "n_seen" in t.columns:
+        wide.insert(0, "patients seen", t.groupby(keys)["n_seen"].first())
+    wide.columns.name = None
+    return wide.reset_index()
 
 
 def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> str:
@@ -667,8 +737,10 @@ def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> s
                 parts.append(f'<p class="verdict">{_e(verdict)}</p><p>{_e(text)}</p>')
             extra = [
                 (COLUMN_LABELS.get(c, c), _e(row[c]))
-                for c in row.index
-                if c not in ("patient_id", "verdict", "verdict_text", "_pid") and _fmt(row[c])
+                for c in (*PATIENT_COLUMNS, "mass_verdict", "geometry_verdict")
+                if c in row.index
+                and c not in ("patient_id", "verdict", "verdict_text")
+                and _fmt(row[c])
             ]
             if extra:
                 parts.append(_kv(extra[:24]))
@@ -681,10 +753,9 @@ def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> s
                 dpi=80,
             )
         )
-        cols = [c for c in VISIT_COLUMNS if c in v.columns]
-        cols += [c for c in v.columns if c not in cols and c not in ("patient_id", "sex")][
-            : max(0, 14 - len(cols))
-        ]
+        cols = [c for c in (*VISIT_COLUMNS, *VISIT_EXTRA_COLUMNS) if c in v.columns]
+        if not cols:
+            cols = [c for c in v.columns if c not in ("patient_id", "sex")][:14]
         parts.append(_table(v[cols]))
         parts.append("</div>")
     parts.append("</section>")
@@ -761,8 +832,13 @@ def _methods_section(analysis, reference_set, ref_problem: str) -> str:
         parts.append("<p>Listed by the run itself as unverified:</p>")
         parts.append(_render_value(methods["unverified"]))
     if methods:
+        record = dict(methods)
+        ref = record.get("reference_set")
+        if isinstance(ref, Mapping) and "rows" in ref:
+            record["reference_set"] = {k: v for k, v in ref.items() if k != "rows"}
+        record.pop("unverified", None)
         parts.append("<h3>Methods record of the run</h3>")
-        parts.append(_render_value(methods))
+        parts.append(_render_value(record))
     parts.append("</section>")
     return "".join(parts)
 

@@ -358,9 +358,10 @@ def escape_formula_text(table: pd.DataFrame) -> pd.DataFrame:
     for name in out.columns:
         mask = formula_like_mask(out[name])
         if mask.any():
+            dtype = out[name].dtype
             col = out[name].astype(object)
             col[mask] = "'" + col[mask].astype(str)
-            out[name] = col
+            out[name] = col.astype(dtype) if isinstance(dtype, pd.StringDtype) else col
     return out
 
 

@@ -706,7 +706,7 @@ def _real(change, lsc: float) -> pd.Series:
     """True when |change| >= LSC, False below, <NA> when the change is unknown."""
     change = np.asarray(change, dtype=float)
     with np.errstate(invalid="ignore"):
-        real = pd.array(np.abs(change) > lsc, dtype="boolean")
+        real = pd.array(np.abs(change) >= lsc, dtype="boolean")
     real[np.isnan(change)] = pd.NA
     return real
 

@@ -1,0 +1,141 @@
+"""analyse(): published worked examples end to end, and the row invariants."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from conftest import canonical_row
+
+import wallstress
+from wallstress import Options
+from wallstress.schema import OUTPUT_COLUMNS
+
+
+def test_worked_example_vs_sources(worked_example):
+    """Computed from the published formulas (../shared/sources.md): ASE-corrected cube (Devereux RB et al.,
+    Am J Cardiol 1986;57:450) 1.0/5.0/1.0 cm -> 181.976 g; Teichholz (Am J Cardiol 1976;37:7) 5.0 cm ->
+    118.243 mL, 3.2 cm -> 40.960 mL, EF 65.36 %, FS 36.0 %; meridional ESS (Grossman 1975, 0.334 from
+    memory) 120 mmHg, 3.2, 1.6 cm -> 53.44; circumferential ESS (Gaasch, 1.35 from memory) -> 150.00;
+    two-shell midwall FS (Shimizu 1991; de Simone 1994; form from memory) -> 16.94 %."""
+    r = wallstress.analyse(worked_example).iloc[0]
+    assert r["lv_mass_g"] == pytest.approx(181.976, abs=5e-4)
+    assert r["edv_teichholz_ml"] == pytest.approx(118.243, abs=5e-4)
+    assert r["esv_teichholz_ml"] == pytest.approx(40.960, abs=5e-4)
+    assert r["ef_teichholz_pct"] == pytest.approx(65.36, abs=5e-3)
+    assert r["fs_pct"] == pytest.approx(36.0, abs=1e-9)
+    assert r["mess_kdyn_cm2"] == pytest.approx(53.44, abs=5e-3)
+    assert r["cess_kdyn_cm2"] == pytest.approx(150.00, abs=5e-3)
+    assert r["midwall_fs_pct"] == pytest.approx(16.94, abs=5e-3)
+    # RWT = 2 PWd / LVIDd (Lang 2015): 2 * 1.0 / 5.0
+    assert r["rwt"] == pytest.approx(0.4)
+
+
+def test_mosteller_option_vs_mosteller_1987(worked_example):
+    """Mosteller RD, N Engl J Med 1987;317:1098: sqrt(180 * 80 / 3600) = 2.0000 m2; LVMI = 181.976 / 2."""
+    r = wallstress.analyse(worked_example, Options(bsa_method="mosteller")).iloc[0]
+    assert r["bsa_m2"] == pytest.approx(2.0, abs=1e-12)
+    assert r["lvmi_bsa_g_m2"] == pytest.approx(90.988, abs=5e-4)
+
+
+def test_height27_index_vs_de_simone_1992(worked_example):
+    """de Simone G et al., J Am Coll Cardiol 1992;20:1251: LVM / height[m]^2.7; 1.8^2.7 by hand."""
+    r = wallstress.analyse(worked_example).iloc[0]
+    assert r["lvmi_h27_g_m2_7"] == pytest.approx(181.976 / 1.8**2.7, rel=1e-6)
+
+
+def test_exact_stress_constant_is_1_5_percent_lower(worked_example):
+    """sources.md: the exact mmHg->kdyn/cm2 factor 1.33322 is 1.5 % below the published 1.35."""
+    pub = wallstress.analyse(worked_example).iloc[0]["cess_kdyn_cm2"]
+    exact = wallstress.analyse(worked_example, Options(stress_constant="exact")).iloc[0]["cess_kdyn_cm2"]
+    assert exact / pub == pytest.approx(1.33322387415 / 1.35, rel=1e-6)
+
+
+def test_scaled_sbp_vs_kelly_1992(worked_example):
+    """Kelly RP et al., Circulation 1992;86:513 / Chen CH et al., JACC 2001: end-systolic pressure 0.9 SBP;
+    meridional stress is proportional to pressure."""
+    r = wallstress.analyse(worked_example, Options(es_pressure="scaled_sbp")).iloc[0]
+    assert r["es_pressure_mmhg"] == pytest.approx(108.0)
+    assert r["mess_kdyn_cm2"] == pytest.approx(53.44 * 0.9, abs=5e-3)
+
+
+def test_cuff_readings_are_averaged():
+    """Stated rule: the mean of the readings present (common practice, no source)."""
+    df = pd.DataFrame([canonical_row(sbp_mmhg=130.0, sbp_2_mmhg=120.0, sbp_3_mmhg=np.nan)])
+    assert wallstress.analyse(df).iloc[0]["es_pressure_mmhg"] == pytest.approx(125.0)
+
+
+def test_rows_in_order_cells_unchanged_extra_columns_kept():
+    rows = [canonical_row(study_id=f"S{i}", lvidd_cm=4.0 + i / 10) for i in range(5)]
+    rows[2]["ivsd_cm"] = np.nan            # cannot compute mass
+    rows[3]["lvidd_cm"] = -1.0             # impossible
+    df = pd.DataFrame(rows)
+    df["comment"] = ["a", None, "=1+1", "x", "y"]
+    df.index = [10, 11, 12, 13, 14]
+    before = df.copy()
+    out = wallstress.analyse(df)
+    pd.testing.assert_frame_equal(df, before)                       # input not mutated
+    assert list(out.columns[: df.shape[1]]) == list(df.columns)     # user's columns first, in order
+    assert list(out.columns[df.shape[1]:]) == list(OUTPUT_COLUMNS)
+    pd.testing.assert_frame_equal(out[df.columns], before)          # own cells unchanged
+    assert list(out.index) == list(df.index)
+    assert np.isnan(out.loc[12, "lv_mass_g"]) and np.isnan(out.loc[13, "lv_mass_g"])
+    assert "lvidd_cm_impossible" in out.loc[13, "flags"]
+    assert out["lv_mass_g"].notna().sum() == 3
+
+
+def test_missing_sex_is_flagged_not_guessed():
+    df = pd.DataFrame([canonical_row(sex=None), canonical_row(sex="F")])
+    out = wallstress.analyse(df)
+    assert out.loc[0, "geometry"] == "" and out.loc[1, "geometry"] != ""
+    assert "sex_missing" in out.loc[0, "flags"]
+    assert out.loc[0, "lv_mass_g"] == pytest.approx(181.976, abs=5e-4)  # sex-free measures still computed
+
+
+def test_output_name_collision_is_prefixed():
+    df = pd.DataFrame([canonical_row(rwt=0.99)])
+    out = wallstress.analyse(df)
+    assert out.loc[0, "rwt"] == 0.99 and out.loc[0, "ws_rwt"] == pytest.approx(0.4)
+
+
+def test_measured_volumes_preferred_for_edv():
+    """Gaasch & Zile 2011 classes by EDV index: a measured (biplane) volume is used where present."""
+    df = pd.DataFrame([canonical_row(lvedv_ml=100.0), canonical_row()])
+    out = wallstress.analyse(df)
+    assert out.loc[0, "edv_source"] == "measured" and out.loc[0, "edv_ml"] == 100.0
+    assert out.loc[1, "edv_source"] == "teichholz"
+    assert "edv_from_teichholz" in out.loc[1, "flags"] and "edv_from_teichholz" not in out.loc[0, "flags"]
+
+
+def test_area_length_used_where_2d_present_else_linear():
+    df = pd.DataFrame([canonical_row(epi_area_cm2=40.0, endo_area_cm2=15.0, lv_length_cm=8.0), canonical_row()])
+    out = wallstress.analyse(df, Options(mass_method="area_length"))
+    assert list(out["lv_mass_method"]) == ["area_length", "ase_corrected"]
+    assert "mass_linear_fallback" in out.loc[1, "flags"]
+
+
+def test_bad_option_lists_valid_names():
+    with pytest.raises(ValueError, match="mosteller"):
+        wallstress.analyse(pd.DataFrame([canonical_row()]), Options(bsa_method="dubios"))
+
+
+def test_methods_record_names_formulas_sources_and_unverified(worked_example):
+    m = wallstress.analyse_with_findings(worked_example).methods
+    outputs = {f["output"] for f in m["formulas"]}
+    assert {"lv_mass_g", "mess_kdyn_cm2", "cess_kdyn_cm2", "midwall_fs_pct"} <= outputs
+    assert all(f["source"] for f in m["formulas"])
+    assert m["reference_set"]["name"] == "ase_eacvi_2015"
+    assert any("midwall_stress_line" in u for u in m["unverified"])
+    assert any("clinician" in c for c in m["cautions"])
+    assert m["counts"]["rows"] == 1
+
+
+def test_empty_table_gives_empty_result():
+    df = pd.DataFrame(columns=["sex", "ivsd_cm", "lvidd_cm", "pwd_cm"])
+    out = wallstress.analyse(df)
+    assert len(out) == 0 and "lv_mass_g" in out.columns
+
+
+def test_series_index_kept_through_analyse():
+    df = pd.DataFrame([canonical_row(), canonical_row()], index=["a", "b"])
+    assert list(wallstress.analyse(df).index) == ["a", "b"]
