@@ -153,6 +153,9 @@ def _write_lab_workbook(df: pd.DataFrame, path: Path) -> None:
         c.fill = PatternFill("solid", fgColor="DDEBF7")
     for rec in df.itertuples(index=False):
         ws.append([None if (isinstance(v, float) and np.isnan(v)) else v for v in rec])
+        for cell in ws[ws.max_row]:
+            if isinstance(cell.value, str) and cell.value.startswith("="):
+                cell.data_type = "s"  # text that looks like a formula stays text in the lab's file
     for cell in ws["C"][1:]:
         cell.number_format = "yyyy-mm-dd"
     ws["A1"].comment = Comment("One row per echocardiogram (invented demo data).", "Fernhill lab")

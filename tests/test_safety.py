@@ -100,7 +100,10 @@ def test_atomic_files_all_or_nothing(tmp_path):
 
 
 def test_atomic_missing_folder_names_it(tmp_path):
-    with pytest.raises(OutputError, match="does not exist"), safety.atomic_path(tmp_path / "nope" / "x.csv"):
+    with (
+        pytest.raises(OutputError, match="does not exist"),
+        safety.atomic_path(tmp_path / "nope" / "x.csv"),
+    ):
         pass
 
 
@@ -109,18 +112,26 @@ def test_atomic_unwritable_folder_simulated(tmp_path, monkeypatch):
         raise PermissionError(13, "Permission denied")
 
     monkeypatch.setattr(safety.tempfile, "mkstemp", refuse)
-    with pytest.raises(OutputError, match="cannot write in folder"), safety.atomic_path(tmp_path / "x.csv"):
+    with (
+        pytest.raises(OutputError, match="cannot write in folder"),
+        safety.atomic_path(tmp_path / "x.csv"),
+    ):
         pass
 
 
-@pytest.mark.skipif(os.name != "posix" or os.geteuid() == 0, reason="root ignores folder permissions")
+@pytest.mark.skipif(
+    os.name != "posix" or os.geteuid() == 0, reason="root ignores folder permissions"
+)
 def test_atomic_unwritable_folder_real(tmp_path):
     folder = tmp_path / "ro"
     folder.mkdir()
     (folder / "x.csv").write_text("previous")
     folder.chmod(0o500)
     try:
-        with pytest.raises(OutputError, match="cannot write"), safety.atomic_path(folder / "x.csv") as t:
+        with (
+            pytest.raises(OutputError, match="cannot write"),
+            safety.atomic_path(folder / "x.csv") as t,
+        ):
             t.write_text("new")
         assert (folder / "x.csv").read_text() == "previous"
     finally:
@@ -198,7 +209,9 @@ def test_escape_formula_text_quotes_only_text():
 
 
 def test_hyperlink_like_mask():
-    col = pd.Series(["http://x.org", "see www.x.org", "www.x.org", "mailto:a@b", r"\\srv\share", "ok"])
+    col = pd.Series(
+        ["http://x.org", "see www.x.org", "www.x.org", "mailto:a@b", r"\\srv\share", "ok"]
+    )
     assert safety.hyperlink_like_mask(col).tolist() == [True, False, True, True, True, False]
 
 
@@ -256,9 +269,13 @@ def test_lossy_parts_sheet_extlst(tmp_path):
         for item in zin.infolist():
             data = zin.read(item.filename)
             if item.filename == "xl/worksheets/sheet1.xml":
-                data = data.replace(b"</worksheet>", b'<extLst><ext uri="{x}"/></extLst></worksheet>')
+                data = data.replace(
+                    b"</worksheet>", b'<extLst><ext uri="{x}"/></extLst></worksheet>'
+                )
             zout.writestr(item, data)
-    assert safety.lossy_workbook_parts(dest) == ["extensions (extLst) in sheet xl/worksheets/sheet1.xml"]
+    assert safety.lossy_workbook_parts(dest) == [
+        "extensions (extLst) in sheet xl/worksheets/sheet1.xml"
+    ]
 
 
 def test_lossy_parts_not_a_zip(tmp_path):

@@ -144,8 +144,13 @@ def _cutoff(reference_set, measure: str, sex: str):
         return None
 
 
+VERIFIED_OK: tuple[str, ...] = ("published", "computed", "lab")
+"""Statuses that need no "unverified" mark: read in the source, computed from such a value, or
+the lab's own limits."""
+
+
 def _status(verified) -> str:
-    return "" if verified in (None, "", "published") else str(verified)
+    return "" if verified in (None, "", *VERIFIED_OK) else str(verified)
 
 
 def _status_words(status: str) -> str:
@@ -587,8 +592,9 @@ def line_values(line) -> tuple[float, float, float, str]:
     """(intercept [%], slope [%/(kdyn/cm²)], residual SD [%], status) of a reference line.
 
     ``line`` maps the names in ``LINE_KEYS`` to numbers or to objects with ``.value`` and
-    ``.verified`` (``ReferenceSet.coefficients('midwall_stress_line')``). ``status`` is
-    ``'published'`` only when every coefficient (or the dict's own ``'verified'`` entry) says so.
+    ``.verified`` (``ReferenceSet.coefficients('midwall_stress_line')``). ``status`` is the first
+    status outside ``VERIFIED_OK`` (e.g. ``'from_memory'``; ``'unverified'`` when none is given),
+    else ``'published'`` or the lab's / computed status.
     """
     missing = [k for k in LINE_KEYS if k not in line]
     if missing:
@@ -605,12 +611,14 @@ def line_values(line) -> tuple[float, float, float, str]:
     own = line.get("verified") if hasattr(line, "get") else None
     if own is not None:
         statuses = [own]
-    statuses = [s for s in statuses if s is not None]
-    if statuses and all(s == "published" for s in statuses):
-        status = "published"
+    statuses = [str(s) for s in statuses if s is not None]
+    bad = [s for s in statuses if s not in VERIFIED_OK]
+    if not statuses:
+        status = "unverified"
+    elif bad:
+        status = bad[0]
     else:
-        bad = [s for s in statuses if s != "published"]
-        status = str(bad[0]) if bad else "unverified"
+        status = next((s for s in statuses if s != "published"), "published")
     return values[0], values[1], values[2], status
 
 
@@ -670,7 +678,7 @@ def stress_shortening(frame: pd.DataFrame, line) -> Figure:
         a, b, sd, status = line_values(line)
         xs = np.linspace(lo, hi, 50)
         ys = a + b * xs
-        flag = "" if status == "published" else " (unverified)"
+        flag = "" if status in VERIFIED_OK else " (unverified)"
         ax.fill_between(
             xs,
             ys - BAND_Z * sd,
@@ -689,7 +697,7 @@ def stress_shortening(frame: pd.DataFrame, line) -> Figure:
             label=f"reference line: {a:g} {'+' if b >= 0 else '-'} {abs(b):g} × cESS{flag}",
             zorder=2,
         )
-        if status != "published":
+        if status not in VERIFIED_OK:
             ax.text(
                 0.01,
                 0.01,

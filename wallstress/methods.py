@@ -59,14 +59,14 @@ FORMULAS: dict[str, dict[str, tuple[str, str, str]]] = {
     },
     "cess_kdyn_cm2": {
         "published": ("1.35 * P * a^2 / (b^2 - a^2) * (1 + b^2 / (a + PWs/2)^2), a = LVIDs/2, b = a + PWs", "Gaasch WH, thick-walled cylinder, as used by de Simone G et al., J Am Coll Cardiol 1994;23:1444 (form checked; 1.35 from memory)", "from_memory"),
-        "exact": ("1.333224 * P * a^2 / (b^2 - a^2) * (1 + b^2 / (a + PWs/2)^2)", "same form with the exact mmHg -> kdyn/cm2 factor (1.5 % lower)", "published"),
+        "exact": ("1.333224 * P * a^2 / (b^2 - a^2) * (1 + b^2 / (a + PWs/2)^2)", "same form with the exact mmHg -> kdyn/cm2 factor (1.24 % lower)", "published"),
     },
     "midwall_fs_pct": {"": ("two-shell ellipsoid: inner = ((LVIDd + Hd)^3 - LVIDd^3 + LVIDs^3)^(1/3), Hd = (IVSd + PWd)/2; MWS = ((LVIDd + Hd) - inner) / (LVIDd + Hd) * 100", "Shimizu G et al., Circulation 1991;83:1676; de Simone G et al., J Am Coll Cardiol 1994;23:1444 (method checked; formula form from memory)", "from_memory")},
     "midwall_fs_predicted_pct": {"": ("intercept + slope * cESS (reference line of the set)", "de Simone G et al. 1994/1996 (coefficients NOT found: the bundled line is approximate, from memory)", "from_memory")},
     "midwall_fs_stress_corrected_pct": {"": ("observed / predicted midwall FS * 100", "de Simone G et al., Circulation 1996;93:259", "published")},
     "vcf_circ_s": {"": ("FS (fraction) / ejection time [s]", "Colan SD et al., J Am Coll Cardiol 1984;4:715 (from memory)", "from_memory")},
     "vcfc_circ_s": {"": ("FS / (ET / sqrt(RR)), RR = 60 / HR [s]", "Colan SD et al., J Am Coll Cardiol 1984;4:715 (from memory)", "from_memory")},
-    "stroke_work_g_m": {"": ("SBP * SV * 0.0144", "de Simone G et al. (from memory)", "from_memory")},
+    "stroke_work_g_m": {"": ("SBP * SV * 0.0144 (mercury density gives 0.013595: the published 0.0144 is 5.9 % higher; kept because the predicted-mass coefficients were fitted with it)", "de Simone G et al. (from memory)", "from_memory")},
     "lv_mass_predicted_g": {"": ("intercept + c1 * height^2.7 + c2 * stroke work + c3 * sex (male 1, female 2)", "de Simone G et al. 1996/1998 (rule checked; coefficients from memory)", "from_memory")},
 }
 

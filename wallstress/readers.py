@@ -448,10 +448,11 @@ def _read_csv(p: Path, data: bytes, max_rows, columns) -> StudyTable:
             ) from exc
     grid = _blank_to_nan(grid)
     table, header_row, first, parts = _frame_from_grid(p, grid, columns, None, None)
-    table, dec = _numbers_from_text(table, allow_comma=delim != ",")
     if max_rows is not None:
         table = table.iloc[:max_rows].reset_index(drop=True)
-    parts = [*notes, *parts, *_cell_findings(table)]
+    cell_parts = _cell_findings(table)  # before numbers: "#N/A" in a number column -> NaN
+    table, dec = _numbers_from_text(table, allow_comma=delim != ",")
+    parts = [*notes, *parts, *cell_parts]
     if dec == ",":
         parts.append(
             _file_note(

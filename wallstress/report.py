@@ -173,7 +173,8 @@ th, td { border-bottom: 1px solid var(--rule); padding: 3px 9px; text-align: lef
          vertical-align: top; }
 th { background: var(--band); font-weight: 600; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
-table.kv th { width: 16em; }
+td.num, td.nw { white-space: nowrap; }
+table.kv th { width: 22em; }
 .sev-error { color: #a33a00; font-weight: 600; }
 .sev-warning { color: #8a5a00; }
 .sev-note { color: var(--muted); }
@@ -260,18 +261,25 @@ def _table(df: pd.DataFrame, *, max_rows: int = MAX_TABLE_ROWS, index: bool = Fa
     if index:
         shown = shown.reset_index()
     nums = {c: _is_num(shown[c]) for c in shown.columns}
+    short = (
+        {
+            c: nums[c] or shown[c].map(lambda v: len(_fmt(v))).max(skipna=True) <= 24
+            for c in shown.columns
+        }
+        if len(shown)
+        else {c: True for c in shown.columns}
+    )
     head = "".join(
         f'<th class="num">{_label(c)}</th>' if nums[c] else f"<th>{_label(c)}</th>"
         for c in shown.columns
     )
     cols = [shown[c].to_numpy(dtype=object) for c in shown.columns]
-    numflags = [nums[c] for c in shown.columns]
+    classes = [
+        ' class="num"' if nums[c] else (' class="nw"' if short[c] else "") for c in shown.columns
+    ]
     body = []
     for i in range(len(shown)):
-        cells = "".join(
-            f'<td class="num">{_e(col[i])}</td>' if isnum else f"<td>{_e(col[i])}</td>"
-            for col, isnum in zip(cols, numflags, strict=True)
-        )
+        cells = "".join(f"<td{cl}>{_e(col[i])}</td>" for col, cl in zip(cols, classes, strict=True))
         body.append(f"<tr>{cells}</tr>")
     extra = ""
     if len(df) > max_rows:
@@ -466,13 +474,15 @@ def _summary_section(analysis, frame: pd.DataFrame, findings: pd.DataFrame) -> s
         flagged = int(rowwise["row"].nunique())
     n_err = int((sev == 2).sum())
     n_warn = int((sev == 1).sum())
+    n_note = int((sev == 0).sum())
     file_level = int((findings["row"] < 0).sum())
     decided = int(_geometry_labels(frame).ne("undetermined").sum()) if len(frame) else 0
     pairs = [
         ("Rows (studies)", _e(n)),
         ("Rows with any flag", _e(flagged)),
         ("Rows with an error (a measure could not be computed)", _e(n_err)),
-        ("Rows with a warning only (computed; check the value)", _e(n_warn)),
+        ("Rows with a warning, no error (computed; check the value)", _e(n_warn)),
+        ("Rows with notes only (information)", _e(n_note)),
         ("Rows with a geometry class", _e(decided)),
         ("Findings about the whole file or a column", _e(file_level)),
     ]
@@ -543,6 +553,26 @@ def _flagged_section(frame: pd.DataFrame, findings: pd.DataFrame, max_rows: int)
         parts.append("<p>No row has a finding.</p></section>")
         return "".join(parts)
     rank = rowwise["severity"].map(SEVERITY_RANK).fillna(0)
+    by_code = (
+        rowwise.assign(_rank=rank)
+        .groupby("code", sort=False)
+        .agg(
+            _rank=("_rank", "max"),
+            rows=("row", "nunique"),
+            message=("message", "first"),
+        )
+        .sort_values(["_rank", "rows"], ascending=False)
+    )
+    names = {v: k for k, v in SEVERITY_RANK.items()}
+    codes_table = pd.DataFrame(
+        {
+            "code": by_code.index.to_numpy(),
+            "severity": by_code["_rank"].astype(int).map(names).to_numpy(),
+            "rows": by_code["rows"].to_numpy(),
+            "message": by_code["message"].to_numpy(),
+        }
+    )
+    parts.append("<h3>Findings by code</h3>" + _table(codes_table, max_rows=max_rows))
     grouped = (
         rowwise.assign(_rank=rank)
         .groupby("row", sort=True)
@@ -552,7 +582,11 @@ def _flagged_section(frame: pd.DataFrame, findings: pd.DataFrame, max_rows: int)
             why=("message", lambda s: " ".join(dict.fromkeys(map(str, s)))),
         )
     )
-    names = {v: k for k, v in SEVERITY_RANK.items()}
+    n_rows_found = len(grouped)
+    n_err = int((grouped["_rank"] >= 2).sum())
+    n_notes_only = int((grouped["_rank"] < 1).sum())
+    grouped = grouped[grouped["_rank"] >= 1]
+    grouped = grouped.iloc[np.lexsort((grouped.index.to_numpy(), -grouped["_rank"].to_numpy()))]
     out = pd.DataFrame({"row": grouped.index.to_numpy() + 1})
     positions = grouped.index.to_numpy()
     valid = positions < len(frame)
@@ -565,11 +599,15 @@ def _flagged_section(frame: pd.DataFrame, findings: pd.DataFrame, max_rows: int)
     out["codes"] = grouped["codes"].to_numpy()
     out["why"] = grouped["why"].to_numpy()
     n = len(out)
-    n_err = int((out["severity"] == "error").sum())
     parts.append(
-        f"<p>{n} row(s) have findings, {n_err} with an error. Data row 1 is the first row under "
-        "the headers.</p>"
+        f"<h3>Rows with an error or a warning</h3><p>{n_rows_found} row(s) have findings: "
+        f"{n_err} with an error, {n - n_err} with a warning, {n_notes_only} with notes only "
+        "(notes are listed by code above). Errors first; data row 1 is the first row under the "
+        "headers.</p>"
     )
+    if not n:
+        parts.append("<p>No row has an error or a warning.</p></section>")
+        return "".join(parts)
     shown = out.iloc[:max_rows]
     head = "".join(f"<th>{_label(c)}</th>" for c in shown.columns)
     body = []
@@ -579,14 +617,16 @@ def _flagged_section(frame: pd.DataFrame, findings: pd.DataFrame, max_rows: int)
         for c in shown.columns:
             if c == "severity":
                 cells.append(f'<td class="sev-{_e(d[c])}">{_e(d[c])}</td>')
+            elif c != "why":
+                cells.append(f'<td class="nw">{_e(d[c])}</td>')
             else:
                 cells.append(f"<td>{_e(d[c])}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
     parts.append(f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>")
     if n > max_rows:
         parts.append(
-            f'<p class="capped">showing the first {max_rows} of {n} flagged rows; the findings '
-            "table written with the results lists every one</p>"
+            f'<p class="capped">showing the first {max_rows} of {n} rows with an error or a '
+            "warning; the findings table written with the results lists every one</p>"
         )
     parts.append("</section>")
     return "".join(parts)
@@ -608,7 +648,9 @@ def _figures_section(frame, reference_set, figs: _Figures) -> str:
     caption = "Midwall fractional shortening against circumferential end-systolic stress."
     if line is not None:
         caption += " Line and 95 % band: the reference relation of the set"
-        caption += "." if status == "published" else f" (UNVERIFIED: {status.replace('_', ' ')})."
+        caption += (
+            "." if status in fig_mod.VERIFIED_OK else f" (UNVERIFIED: {status.replace('_', ' ')})."
+        )
     parts.append(figs.embed(fig_mod.stress_shortening(frame, line), "stress_shortening", caption))
     parts.append("</section>")
     return "".join(parts)

@@ -20,8 +20,10 @@ or link); formula-like text in CSV outputs is reported and optionally escaped.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import math
+import os
 import re
 from dataclasses import dataclass
 from datetime import date, datetime, timezone
@@ -624,15 +626,35 @@ def _save_new_workbook(out, parts, methods, source, methods_sheet, report) -> No
 
     _check_excel_size(parts)
     wb = Workbook(write_only=True)
-    used: list[str] = []
-    for part in parts:
-        ws = wb.create_sheet(_unique_sheet_name(part.sheet, used))
-        _fill_sheet(ws, part.frame, part.unit_columns, report)
-    mrows = methods_rows(methods, source, notes=report.notes, outputs=[out])
-    ws = wb.create_sheet(_unique_sheet_name(methods_sheet, used))
-    _fill_sheet(ws, mrows, "none", report, widths=(28, 110), number_formats=False)
-    with safety.atomic_path(out) as tmp:
-        wb.save(tmp)
+    try:
+        used: list[str] = []
+        for part in parts:
+            ws = wb.create_sheet(_unique_sheet_name(part.sheet, used))
+            _fill_sheet(ws, part.frame, part.unit_columns, report)
+        mrows = methods_rows(methods, source, notes=report.notes, outputs=[out])
+        ws = wb.create_sheet(_unique_sheet_name(methods_sheet, used))
+        _fill_sheet(ws, mrows, "none", report, widths=(28, 110), number_formats=False)
+        with safety.atomic_path(out) as tmp:
+            wb.save(tmp)
+    except BaseException:
+        _discard_write_only(wb)
+        raise
+
+
+def _discard_write_only(wb) -> None:
+    """Close a failed write-only workbook's sheet streams and remove their scratch files."""
+    for ws in list(getattr(wb, "_sheets", [])):
+        rows = getattr(ws, "_rows", None)
+        writer = getattr(ws, "_writer", None)
+        with contextlib.suppress(Exception):
+            if rows is not None:
+                rows.close()
+        with contextlib.suppress(Exception):
+            if writer is not None:
+                writer.xf.close()
+        with contextlib.suppress(Exception):
+            if writer is not None and isinstance(writer.out, str):
+                os.remove(writer.out)
 
 
 def _save_workbook_copy(
@@ -698,15 +720,6 @@ def _fill_sheet(ws, frame, unit_columns, report, *, widths=None, number_formats=
         headers = [header_with_unit(c) if c in out_set else c for c in columns]
     else:
         headers = columns
-    bold = Font(bold=True)
-    header_cells = []
-    for h in headers:
-        cell = WriteOnlyCell(ws, value=_clean_text(h)[0])
-        cell.data_type = "s"
-        cell.font = bold
-        header_cells.append(cell)
-    ws.append(header_cells)
-
     col_values = []
     col_fmt = []
     col_text_len = []
@@ -721,24 +734,7 @@ def _fill_sheet(ws, frame, unit_columns, report, *, widths=None, number_formats=
         col_fmt.append(fmt)
         col_text_len.append(text_len)
 
-    for row in zip(*col_values, strict=True) if col_values else ():
-        out = []
-        for j, v in enumerate(row):
-            if isinstance(v, str):
-                cell = WriteOnlyCell(ws, value=None)
-                cell._value = v
-                cell.data_type = "s"
-                if v[:1] in safety.FORMULA_PREFIXES:
-                    cell.quotePrefix = True
-                out.append(cell)
-            elif col_fmt[j] is not None and v is not None:
-                cell = WriteOnlyCell(ws, value=v)
-                cell.number_format = col_fmt[j]
-                out.append(cell)
-            else:
-                out.append(v)
-        ws.append(out)
-
+    # sheet view, column widths and filter first: a write-only sheet writes them before the rows
     n_cols = len(columns)
     if n_cols:
         ws.freeze_panes = "A2"
@@ -749,6 +745,33 @@ def _fill_sheet(ws, frame, unit_columns, report, *, widths=None, number_formats=
         else:
             width = min(60, max(8, len(headers[j]) + 2, col_text_len[j] + 2))
         ws.column_dimensions[get_column_letter(j + 1)].width = width
+
+    bold = Font(bold=True)
+    header_cells = []
+    for h in headers:
+        cell = WriteOnlyCell(ws, value=_clean_text(h)[0])
+        cell.data_type = "s"
+        cell.font = bold
+        header_cells.append(cell)
+    ws.append(header_cells)
+
+    for row in zip(*col_values, strict=True) if col_values else ():
+        out = []
+        for j, v in enumerate(row):
+            if isinstance(v, str):
+                cell = WriteOnlyCell(ws, value=None)
+                cell._value = v  # bypass openpyxl's "=..." -> formula and "#N/A" -> error guessing
+                cell.data_type = "s"
+                if v[:1] in safety.FORMULA_PREFIXES:
+                    cell.quotePrefix = True  # stays text when a user edits the cell
+                out.append(cell)
+            elif col_fmt[j] is not None and v is not None:
+                cell = WriteOnlyCell(ws, value=v)
+                cell.number_format = col_fmt[j]
+                out.append(cell)
+            else:
+                out.append(v)
+        ws.append(out)
 
 
 def _is_date_only(col: pd.Series) -> bool:
@@ -897,7 +920,24 @@ def _to_csv(frame, tmp, source, escape_formulas) -> None:
         delimiter = ";"
     if escape_formulas:
         frame = safety.escape_formula_text(frame)
+    if decimal != ".":
+        frame = _floats_as_text(frame, decimal)
     frame.to_csv(tmp, index=False, sep=delimiter, decimal=decimal, encoding=encoding)
+
+
+def _floats_as_text(frame: pd.DataFrame, decimal: str) -> pd.DataFrame:
+    """Float columns as shortest round-trip text with ``decimal`` (pandas rounds them otherwise)."""
+    out = frame.copy()
+    for i in range(out.shape[1]):
+        col = out.iloc[:, i]
+        if pd.api.types.is_float_dtype(col.dtype):
+            text = (
+                col.map(repr, na_action="ignore")
+                .astype(object)
+                .str.replace(".", decimal, regex=False)
+            )
+            out.isetitem(i, text.where(col.notna(), None))
+    return out
 
 
 def _to_parquet(frame, tmp, sheet, report) -> None:

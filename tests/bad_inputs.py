@@ -1,0 +1,274 @@
+"""A corpus of broken and hostile study-list files, made on demand into a folder (no binary junk kept).
+
+Each entry is ``(name, maker, expect, detail)``: ``maker(folder) -> path`` writes the file;
+``expect`` is "error" (``read_studies`` must raise ``InputError`` whose message matches the regex
+``detail``) or "finding" (it must return, with a finding whose code is ``detail``).
+
+All data are invented.
+"""
+
+from __future__ import annotations
+
+import io
+import random
+import struct
+import zipfile
+from pathlib import Path
+
+import openpyxl
+
+GOOD_HEADER = ["study_id", "sex", "height_cm", "weight_kg", "IVSd (mm)", "LVIDd (mm)", "PWd (mm)"]
+GOOD_ROWS = [["D001", "F", 162, 61, 9, 47, 9], ["D002", "M", 178, 84, 11, 52, 10]]
+
+
+def _csv_text(header=GOOD_HEADER, rows=GOOD_ROWS, sep=",") -> str:
+    lines = [sep.join(map(str, header))] + [sep.join(map(str, r)) for r in rows]
+    return "\n".join(lines) + "\n"
+
+
+def good_xlsx(path: Path, header=GOOD_HEADER, rows=GOOD_ROWS, title="Studies") -> Path:
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = title
+    ws.append(header)
+    for r in rows:
+        ws.append(r)
+    wb.save(path)
+    return path
+
+
+def _write(folder: Path, name: str, data: bytes | str) -> Path:
+    p = folder / name
+    if isinstance(data, str):
+        data = data.encode("utf-8")
+    p.write_bytes(data)
+    return p
+
+
+def _random_bytes(n: int, seed: int = 7) -> bytes:
+    rnd = random.Random(seed)
+    return bytes(rnd.getrandbits(8) for _ in range(n))
+
+
+def _ole_file(streams_marker: bytes = b"") -> bytes:
+    # An OLE compound-file signature and header, padded; enough for format sniffing.
+    header = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1" + b"\x00" * 16 + struct.pack("<HH", 0x3E, 3)
+    return header + b"\x00" * (512 - len(header)) + streams_marker + b"\x00" * 1024
+
+
+def missing(folder: Path) -> Path:
+    return folder / "no_such_file.csv"
+
+
+def empty_file(folder: Path) -> Path:
+    return _write(folder, "empty.csv", b"")
+
+
+def blank_file(folder: Path) -> Path:
+    return _write(folder, "blank.csv", "\n\n   \n")
+
+
+def header_only(folder: Path) -> Path:
+    return _write(folder, "header_only.csv", ",".join(GOOD_HEADER) + "\n")
+
+
+def random_xlsx(folder: Path) -> Path:
+    return _write(folder, "random.xlsx", _random_bytes(4096))
+
+
+def random_csv(folder: Path) -> Path:
+    return _write(folder, "random.csv", _random_bytes(4096, seed=11))
+
+
+def nul_csv(folder: Path) -> Path:
+    return _write(folder, "nul.csv", _csv_text().encode() + b"\x00\x00\x00junk")
+
+
+def not_cp1252(folder: Path) -> Path:
+    # 0x81 and 0x8d are undefined in Windows-1252 and invalid alone in UTF-8
+    return _write(folder, "bytes.csv", _csv_text().encode() + b"D003,F,1\x81\x8d,60,9,47,9\n")
+
+
+def legacy_xls(folder: Path) -> Path:
+    return _write(folder, "old.xls", _ole_file(b"W\x00o\x00r\x00k\x00b\x00o\x00o\x00k\x00"))
+
+
+def encrypted_xlsx(folder: Path) -> Path:
+    marker = (
+        "EncryptionInfo".encode("utf-16-le") + b"\x00\x00" + "EncryptedPackage".encode("utf-16-le")
+    )
+    return _write(folder, "locked.xlsx", _ole_file(marker))
+
+
+def ole_named_xlsx(folder: Path) -> Path:
+    return _write(
+        folder, "renamed_xls.xlsx", _ole_file(b"W\x00o\x00r\x00k\x00b\x00o\x00o\x00k\x00")
+    )
+
+
+def zip_bomb_ratio(folder: Path) -> Path:
+    p = folder / "bomb.xlsx"
+    with zipfile.ZipFile(p, "w", compression=zipfile.ZIP_DEFLATED, compresslevel=9) as zf:
+        zf.writestr("[Content_Types].xml", "<Types/>")
+        zf.writestr("xl/workbook.xml", "<workbook/>")
+        zf.writestr("xl/worksheets/sheet1.xml", b"\x00" * (40 * 1024**2))
+    return p
+
+
+def zip_bomb_entries(folder: Path) -> Path:
+    p = folder / "many_parts.xlsx"
+    with zipfile.ZipFile(p, "w", compression=zipfile.ZIP_STORED) as zf:
+        zf.writestr("xl/workbook.xml", "<workbook/>")
+        for i in range(10_001):
+            zf.writestr(f"xl/media/p{i}.bin", b"")
+    return p
+
+
+def _replace_part(src: Path, dst: Path, part: str, data: bytes) -> Path:
+    with zipfile.ZipFile(src) as zin, zipfile.ZipFile(dst, "w", zipfile.ZIP_DEFLATED) as zout:
+        for info in zin.infolist():
+            zout.writestr(info, data if info.filename == part else zin.read(info.filename))
+    return dst
+
+
+BILLION_LAUGHS = (
+    b'<?xml version="1.0"?>\n<!DOCTYPE lolz [\n <!ENTITY lol "lol">\n'
+    + b"".join(
+        f' <!ENTITY lol{i} "{("&lol" + (str(i - 1) if i > 1 else "") + ";") * 10}">\n'.encode()
+        for i in range(1, 10)
+    )
+    + b']>\n<worksheet xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main">'
+    b'<sheetData><row r="1"><c r="A1" t="inlineStr"><is><t>&lol9;</t></is></c></row></sheetData>'
+    b"</worksheet>"
+)
+
+
+def entity_expansion(folder: Path) -> Path:
+    good = good_xlsx(folder / "_good_for_entities.xlsx")
+    return _replace_part(good, folder / "entities.xlsx", "xl/worksheets/sheet1.xml", BILLION_LAUGHS)
+
+
+def external_entity(folder: Path) -> Path:
+    good = good_xlsx(folder / "_good_for_xxe.xlsx")
+    xxe = (
+        b'<?xml version="1.0"?><!DOCTYPE w [<!ENTITY x SYSTEM "file:///etc/passwd">]>'
+        b'<worksheet xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main"><sheetData>'
+        b'<row r="1"><c r="A1" t="inlineStr"><is><t>&x;</t></is></c></row></sheetData></worksheet>'
+    )
+    return _replace_part(good, folder / "xxe.xlsx", "xl/worksheets/sheet1.xml", xxe)
+
+
+def truncated_xlsx(folder: Path) -> Path:
+    good = good_xlsx(folder / "_good_for_truncation.xlsx").read_bytes()
+    return _write(folder, "truncated.xlsx", good[: len(good) // 2])
+
+
+def zip_without_workbook(folder: Path) -> Path:
+    buf = io.BytesIO()
+    with zipfile.ZipFile(buf, "w") as zf:
+        zf.writestr("notes.txt", "not a workbook")
+    return _write(folder, "archive.xlsx", buf.getvalue())
+
+
+def missing_sheet(folder: Path) -> Path:
+    return good_xlsx(folder / "sheets.xlsx")
+
+
+def no_header_csv(folder: Path) -> Path:
+    return _write(folder, "no_header.csv", "a,b,c,d\n1,2,3,4\n5,6,7,8\n")
+
+
+def title_rows_only(folder: Path) -> Path:
+    return _write(folder, "titles.csv", "Echo lab export\nGenerated by hand\n\n")
+
+
+def corrupt_parquet(folder: Path) -> Path:
+    return _write(folder, "broken.parquet", b"PAR1" + _random_bytes(256, seed=3) + b"PAR1")
+
+
+def no_header_xlsx(folder: Path) -> Path:
+    return good_xlsx(folder / "unknown_headers.xlsx", header=["a", "b", "c", "d", "e", "f", "g"])
+
+
+def error_cells_xlsx(folder: Path) -> Path:
+    p = folder / "errors.xlsx"
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(GOOD_HEADER)
+    ws.append(["D001", "F", 162, 61, "#DIV/0!", 47, 9])  # openpyxl stores this as an error cell
+    ws.append(["D002", "M", 178, 84, 11, "=E2*5", 10])  # formula never calculated
+    wb.save(p)
+    return p
+
+
+def error_text_csv(folder: Path) -> Path:
+    rows = [["D001", "F", 162, 61, "#N/A", 47, 9], *GOOD_ROWS[1:]]
+    return _write(folder, "error_text.csv", _csv_text(rows=rows))
+
+
+def long_cell_csv(folder: Path) -> Path:
+    header = [*GOOD_HEADER, "comment"]
+    rows = [[*GOOD_ROWS[0], "x" * 40_000], [*GOOD_ROWS[1], "ok"]]
+    return _write(folder, "long_cell.csv", _csv_text(header=header, rows=rows))
+
+
+def duplicate_headers_csv(folder: Path) -> Path:
+    header = [*GOOD_HEADER, "LVIDd (mm)"]
+    rows = [[*r, 50] for r in GOOD_ROWS]
+    return _write(folder, "duplicates.csv", _csv_text(header=header, rows=rows))
+
+
+def ragged_csv(folder: Path) -> Path:
+    text = _csv_text() + "D003,F,160,58,9,46,9,extra,cells\n"
+    return _write(folder, "ragged.csv", text)
+
+
+def xlsx_named_csv(folder: Path) -> Path:
+    good = good_xlsx(folder / "_good_for_rename.xlsx").read_bytes()
+    return _write(folder, "really_xlsx.csv", good)
+
+
+CORPUS: list[tuple[str, object, str, str]] = [
+    ("missing", missing, "error", r"file not found"),
+    ("empty_file", empty_file, "error", r"empty\.csv: the file is empty"),
+    ("blank_file", blank_file, "error", r"the file is empty"),
+    ("header_only", header_only, "finding", "no_rows"),
+    (
+        "random_xlsx",
+        random_xlsx,
+        "error",
+        r"random\.xlsx: the file is named \.xlsx but is not a workbook",
+    ),
+    (
+        "random_csv",
+        random_csv,
+        "error",
+        r"random\.csv: (binary content|not readable|no recognisable header)",
+    ),
+    ("nul_csv", nul_csv, "error", r"binary content \(NUL bytes\)"),
+    ("not_cp1252", not_cp1252, "error", r"not readable as UTF-8 or Windows-1252"),
+    ("legacy_xls", legacy_xls, "error", r"old\.xls: .*legacy binary workbook.*save it as \.xlsx"),
+    ("encrypted_xlsx", encrypted_xlsx, "error", r"locked\.xlsx: .*password-protected"),
+    ("ole_named_xlsx", ole_named_xlsx, "error", r"legacy binary workbook .*save it as \.xlsx"),
+    ("zip_bomb_ratio", zip_bomb_ratio, "error", r"bomb\.xlsx: .*compressed \d+:1 .*zip bomb"),
+    ("zip_bomb_entries", zip_bomb_entries, "error", r"10002 parts .*zip bomb"),
+    ("entity_expansion", entity_expansion, "error", r"DOCTYPE/ENTITY"),
+    ("external_entity", external_entity, "error", r"DOCTYPE/ENTITY"),
+    ("truncated_xlsx", truncated_xlsx, "error", r"truncated\.xlsx: the workbook is damaged"),
+    ("zip_without_workbook", zip_without_workbook, "error", r"holds no workbook"),
+    ("no_header_csv", no_header_csv, "error", r"no recognisable header in the first 20 rows"),
+    ("title_rows_only", title_rows_only, "error", r"no recognisable header"),
+    (
+        "corrupt_parquet",
+        corrupt_parquet,
+        "error",
+        r"broken\.parquet: the parquet file cannot be read",
+    ),
+    ("no_header_xlsx", no_header_xlsx, "error", r"no recognisable header"),
+    ("error_cells_xlsx", error_cells_xlsx, "finding", "spreadsheet_error"),
+    ("uncalculated_formula", error_cells_xlsx, "finding", "formula_not_calculated"),
+    ("error_text_csv", error_text_csv, "finding", "spreadsheet_error"),
+    ("long_cell_csv", long_cell_csv, "finding", "cell_too_long"),
+    ("duplicate_headers_csv", duplicate_headers_csv, "finding", "duplicate_header"),
+    ("xlsx_named_csv", xlsx_named_csv, "finding", "format_differs_from_name"),
+]
