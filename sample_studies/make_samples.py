@@ -52,16 +52,24 @@ def _hearts(rng, n, sex, *, hypertensive=True, lvh=None):
     lvidd = np.where(male, rng.normal(5.0, 0.4, n), rng.normal(4.55, 0.35, n)) + lvh * rng.normal(0.2, 0.3, n)
     ivsd = wall * rng.normal(1.03, 0.06, n)
     pwd = wall * rng.normal(0.98, 0.05, n)
-    fs = rng.normal(0.34, 0.045, n).clip(0.2, 0.46)
-    lvids = lvidd * (1 - fs)
     sbp = rng.normal(150 if hypertensive else 118, 17 if hypertensive else 10, n)
+    # shortening falls as afterload rises (invented, physiologically shaped)
+    fs = (rng.normal(0.34, 0.03, n) - 0.0015 * (sbp - sbp.mean()) - 0.04 * (lvidd - lvidd.mean())).clip(0.2, 0.46)
+    lvids = lvidd * (1 - fs)
     dbp = sbp * rng.normal(0.6, 0.05, n)
     return {
         "height_cm": height, "weight_kg": weight, "sbp_mmhg": sbp, "dbp_mmhg": dbp,
         "hr_bpm": rng.normal(68, 10, n).clip(45, 110), "ivsd_cm": ivsd, "lvidd_cm": lvidd, "pwd_cm": pwd,
-        "ivss_cm": ivsd * rng.normal(1.38, 0.1, n), "lvids_cm": lvids, "pws_cm": pwd * rng.normal(1.55, 0.12, n),
+        "ivss_cm": _systolic_wall(ivsd, lvidd, lvids) * rng.normal(1.0, 0.04, n), "lvids_cm": lvids,
+        "pws_cm": _systolic_wall(pwd, lvidd, lvids) * rng.normal(1.0, 0.04, n),
         "ejection_time_ms": rng.normal(295, 22, n),
     }
+
+
+def _systolic_wall(wall_d, lvidd, lvids):
+    """Systolic wall from an incompressible wall ring: (r_s + h_s)^2 - r_s^2 = (r_d + h_d)^2 - r_d^2."""
+    rd, rs = lvidd / 2, lvids / 2
+    return np.sqrt((rd + wall_d) ** 2 - rd**2 + rs**2) - rs
 
 
 def _rounded(d):

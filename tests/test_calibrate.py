@@ -192,7 +192,11 @@ def test_ci_contains_true_centile(big):
     s = cal.summary.set_index(["measure", "sex"])
     mu, sd = TRUE["lvmi_bsa_g_m2"]["M"]
     true = mu + 1.959964 * sd
-    assert s.loc[("lvmi_bsa_g_m2", "M"), "ci90_low"] < true < s.loc[("lvmi_bsa_g_m2", "M"), "ci90_high"]
+    assert (
+        s.loc[("lvmi_bsa_g_m2", "M"), "ci90_low"]
+        < true
+        < s.loc[("lvmi_bsa_g_m2", "M"), "ci90_high"]
+    )
 
 
 # ---------------------------------------------------------------------------------------------
@@ -241,7 +245,9 @@ def test_lower_limit_is_5th_centile_of_observed_over_predicted(big):
     frame, cal = big
     ref = stats.linregress(frame["cess_kdyn_cm2"], frame["midwall_fs_pct"])
     ratio = 100 * frame["midwall_fs_pct"] / (ref.intercept + ref.slope * frame["cess_kdyn_cm2"])
-    assert cal.line["lower_limit_stress_corrected_pct"] == pytest.approx(np.percentile(ratio, 5), rel=1e-9)
+    assert cal.line["lower_limit_stress_corrected_pct"] == pytest.approx(
+        np.percentile(ratio, 5), rel=1e-9
+    )
     rows = cal.rows.set_index(["kind", "measure", "grade"])
     key = ("coefficient", "midwall_stress_line", "lower_limit_stress_corrected_pct")
     assert rows.loc[key, "verified"] == "lab"
@@ -386,7 +392,9 @@ def test_written_set_loads_and_cutoff_equals_fitted_centile(big, tmp_path):
     assert cut.verified == "lab" and cut.comparison == ">"
     assert s.cutoff("rwt", "M").value == s.cutoff("rwt", "F").value
     line = s.coefficients("midwall_stress_line")
-    assert line["slope_pct_per_kdyn_cm2"].value == pytest.approx(cal.line["slope_pct_per_kdyn_cm2"], rel=1e-9)
+    assert line["slope_pct_per_kdyn_cm2"].value == pytest.approx(
+        cal.line["slope_pct_per_kdyn_cm2"], rel=1e-9
+    )
     assert line["intercept_pct"].verified == "lab"
     assert s.cutoff("lvidd_cm", "M").value == 5.8  # copied (Lang 2015, checked)
 
@@ -406,7 +414,9 @@ def test_pipeline_uses_the_lab_thresholds(lab_analysis, tmp_path):
     assert (ref.loc[women, "lvmi_grade"][above] != "normal").all()
     assert (ref.loc[women, "lvmi_grade"][~above] == "normal").all()
     a, b = cal.line["intercept_pct"], cal.line["slope_pct_per_kdyn_cm2"]
-    np.testing.assert_allclose(ref["midwall_fs_predicted_pct"], a + b * frame["cess_kdyn_cm2"], rtol=1e-9)
+    np.testing.assert_allclose(
+        ref["midwall_fs_predicted_pct"], a + b * frame["cess_kdyn_cm2"], rtol=1e-9
+    )
 
 
 def test_analysis_and_its_frame_give_the_same_limits(lab_analysis):

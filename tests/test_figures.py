@@ -12,10 +12,11 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 import pytest
-from matplotlib.collections import LineCollection, PathCollection, PolyCollection
+from matplotlib.collections import PathCollection, PolyCollection
 from matplotlib.colors import to_hex
 from matplotlib.container import ErrorbarContainer
 from matplotlib.figure import Figure
+from matplotlib.quiver import Quiver
 from scipy import stats
 
 from wallstress import figures as F
@@ -178,28 +179,34 @@ def test_geometry_plane_quadrants_named_in_words():
         assert words in text
 
 
-def test_geometry_plane_paths_one_segment_per_consecutive_visit_pair():
-    """A patient with k visits gives k - 1 segments, in time order. Common practice, no source."""
+def _arrows(ax):
+    q = [c for c in ax.collections if isinstance(c, Quiver)]
+    assert len(q) == 1
+    q = q[0]
+    return np.asarray(q.get_offsets()), np.column_stack([q.U, q.V])
+
+
+def test_geometry_plane_paths_first_to_last_visit_in_time_order():
+    """One arrow per patient with two or more visits, from the earliest to the latest visit
+    (whatever the table order). Common practice, no source."""
     visits = pd.DataFrame(
         {
             "patient_id": ["A", "A", "A", "B", "B", "C"],
             "years_since_baseline": [2.0, 0.0, 1.0, 0.0, 3.0, 0.0],
+            "sex": ["F", "F", "F", "M", "M", "M"],
             "lvmi_bsa_g_m2": [100.0, 130.0, 115.0, 90.0, 95.0, 80.0],
             "rwt": [0.40, 0.50, 0.45, 0.38, 0.40, 0.36],
         }
     )
     fig = F.geometry_plane(visits.iloc[0:0], load_set(), paths=visits)
-    segs = [c for c in _axes(fig).collections if isinstance(c, LineCollection)]
-    assert len(segs) == 1
-    s = segs[0].get_segments()
-    assert len(s) == 2 + 1
-    # A in time order: 130 -> 115 -> 100
-    starts = sorted(tuple(np.round(seg[0], 3)) for seg in s)
-    assert (130.0, 0.5) in starts and (115.0, 0.45) in starts and (100.0, 0.4) not in starts
+    start, delta = _arrows(_axes(fig))
+    np.testing.assert_allclose(start, [[130.0, 0.50], [90.0, 0.38]])
+    np.testing.assert_allclose(delta, [[-30.0, -0.10], [5.0, 0.02]], atol=1e-12)
+    assert "no rows" not in _texts(fig)
 
 
 def test_geometry_plane_paths_capped():
-    """Only the first max_paths patients get a path; the figure says how many were left out."""
+    """Only the first max_paths patients get an arrow; the figure says how many were left out."""
     visits = pd.DataFrame(
         {
             "patient_id": np.repeat([f"P{i}" for i in range(5)], 2),
@@ -209,8 +216,8 @@ def test_geometry_plane_paths_capped():
         }
     )
     fig = F.geometry_plane(visits.iloc[0:0], load_set(), paths=visits, max_paths=3)
-    segs = [c for c in _axes(fig).collections if isinstance(c, LineCollection)][0]
-    assert len(segs.get_segments()) == 3
+    start, _ = _arrows(_axes(fig))
+    assert len(start) == 3
     assert "2 more not drawn" in _texts(fig)
 
 

@@ -308,7 +308,9 @@ def test_xlsx_text_stays_text_in_new_workbook(tmp_path):
         assert not sheet_xml_has_formula(out, title), title
         assert wb[title]._hyperlinks == []
     # an independent reader (calamine) sees the text too; a formula cell would have no cached value
-    back = pd.read_excel(out, sheet_name="wallstress results", engine="calamine")
+    back = pd.read_excel(
+        out, sheet_name="wallstress results", engine="calamine", keep_default_na=False
+    )
     assert back["comment"].tolist() == FORMULA_TEXT
     findings_ws = wb["wallstress findings"]
     values = [c.value for c in findings_ws["D"]]
@@ -630,3 +632,28 @@ def test_csv_source_to_xlsx_is_new_workbook(tmp_path):
     write_results(make_analysis(), tmp_path / "o.xlsx", FakeStudyTable(pd.DataFrame(), src, "csv"))
     assert openpyxl.load_workbook(tmp_path / "o.xlsx").sheetnames[0] == "wallstress results"
     assert safety.sha256_file(src) == digest
+
+
+def test_xlsx_findings_point_at_results_sheet_rows(tmp_path):
+    """Finding row 2 (0-based) is spreadsheet row 4 under a one-line header (common practice, no source)."""
+    out = tmp_path / "r.xlsx"
+    write_results(make_analysis(), out)
+    ws = openpyxl.load_workbook(out)["wallstress findings"]
+    rows = list(ws.iter_rows(values_only=True))
+    head = list(rows[0])
+    hit = next(r for r in rows[1:] if r[head.index("code")] == "lvidd_missing")
+    assert hit[head.index("results_sheet_row")] == 4
+    results = openpyxl.load_workbook(out)["wallstress results"]
+    assert results.cell(row=4, column=1).value == "E3"
+
+
+def test_xlsx_control_characters_and_timezones(tmp_path):
+    a = make_analysis()
+    a.table["odd"] = ["a\x01b", "ok", "x", "y", "z"]
+    a.table["when"] = pd.to_datetime(["2024-01-01 10:00"] * 5).tz_localize("UTC")
+    report = write_results(a, tmp_path / "r.xlsx")
+    ws = openpyxl.load_workbook(tmp_path / "r.xlsx")["wallstress results"]
+    head = [c.value for c in ws[1]]
+    assert ws.cell(row=2, column=head.index("odd") + 1).value == "a\ufffdb"
+    assert ws.cell(row=2, column=head.index("when") + 1).value == "2024-01-01T10:00:00+00:00"
+    assert any("control characters" in n for n in report.notes)

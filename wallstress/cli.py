@@ -264,6 +264,8 @@ def calibrate(
     normals: Path = typer.Argument(..., help="Study list of your lab's healthy subjects."),
     out: Path = typer.Option(..., "--out", "-o", help="Output reference set .csv (use it with --reference)."),
     base: str = typer.Option("ase_eacvi_2015", "--base", help="Set whose rows you do not fit are kept from."),
+    min_per_sex: int = typer.Option(120, "--min-per-sex", help="Subjects needed per sex (CLSI-style nonparametric limit: 120)."),
+    allow_small: bool = typer.Option(False, "--allow-small", help="Fit from 40 or more per sex, marking the rows as small-sample."),
     units: Units = UNITS,
     sheet: str = SHEET,
     columns: Path = COLUMNS,
@@ -273,7 +275,7 @@ def calibrate(
 
     options = _guard(_options, base, Bsa.dubois, Mass.ase_corrected, Rwt.posterior, EsPressure.cuff_sbp,
                      StressConstant.published, units, sheet, columns)
-    result = _guard(calibrate_file, normals, out, options)
+    result = _guard(calibrate_file, normals, out, options, min_per_sex=min_per_sex, allow_small=allow_small)
     for line in result.notes:
         typer.echo(line)
     for p in result.written:

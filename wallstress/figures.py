@@ -29,7 +29,6 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from matplotlib.collections import LineCollection
 from matplotlib.colors import LinearSegmentedColormap
 from matplotlib.dates import AutoDateLocator, ConciseDateFormatter
 from matplotlib.figure import Figure
@@ -241,8 +240,8 @@ def geometry_plane(
         Index on the x axis. Default: the set's own geometry index (``reference_set.mass_index``).
     paths : DataFrame, optional
         A visits table (``patient_id``, ``years_since_baseline`` or ``study_date``, ``rwt``, the
-        mass index): each patient's visits are joined in time order, first (small dot) to last
-        (open circle).
+        mass index, ``sex``): one arrow per patient from the first visit (dot) to the last, in
+        time order, coloured by sex.
     max_paths : int
         At most this many patients' paths are drawn (the first in table order); the figure says
         how many were left out.
@@ -360,7 +359,7 @@ def geometry_plane(
                 bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.75, "pad": 1.5},
                 zorder=4,
             )
-    if not ok.any():
+    if not ok.any() and (paths is None or not len(paths)):
         _no_data(ax)
 
     ax.set_xlabel(MASS_INDEX_LABELS[mass_index])
@@ -388,46 +387,55 @@ def geometry_plane(
 
 
 def _draw_paths(ax, paths: pd.DataFrame, mass_index: str, max_paths: int) -> int:
-    """Join each patient's visits in time order (vectorised: one LineCollection). Returns left-out count."""
+    """One arrow per patient from the first to the last visit (vectorised: one quiver).
+
+    Visits without both values are skipped; patients with fewer than two usable visits get no
+    arrow. Returns how many patients were left out by ``max_paths``.
+    """
     if "patient_id" not in paths.columns:
         return 0
     px, py = _column(paths, mass_index), _column(paths, "rwt")
+    sex = _sex(paths)
     pid = paths["patient_id"].astype("string").fillna("").to_numpy(dtype=object)
     codes, uniques = pd.factorize(pid, sort=False)
     n_patients = len(uniques)
     keep = np.isfinite(px) & np.isfinite(py) & (codes >= 0) & (codes < max_paths)
-    key = _sort_key(paths)
-    order = np.lexsort((key, codes))
+    order = np.lexsort((_sort_key(paths), codes))
     order = order[keep[order]]
-    if order.size < 2:
-        return max(n_patients - max_paths, 0)
-    c, x, y = codes[order], px[order], py[order]
-    same = c[1:] == c[:-1]
-    segs = np.stack([np.column_stack([x[:-1], y[:-1]]), np.column_stack([x[1:], y[1:]])], axis=1)[
-        same
-    ]
-    if len(segs):
-        ax.add_collection(
-            LineCollection(
-                segs, colors=_TEXT_COLOUR, linewidths=0.8, alpha=0.5, zorder=3.5, label=None
+    if order.size:
+        c = codes[order]
+        first = np.r_[True, c[1:] != c[:-1]]
+        last = np.r_[c[1:] != c[:-1], True]
+        i0, i1 = order[first], order[last]
+        moved = i0 != i1
+        i0, i1 = i0[moved], i1[moved]
+        if i0.size:
+            colours = [SEX_COLOURS[s] for s in sex[i0]]
+            ax.scatter(px[i0], py[i0], s=10, color=colours, zorder=4)
+            ax.quiver(
+                px[i0],
+                py[i0],
+                px[i1] - px[i0],
+                py[i1] - py[i0],
+                color=colours,
+                angles="xy",
+                scale_units="xy",
+                scale=1.0,
+                width=0.0035,
+                headwidth=4.0,
+                headlength=5.0,
+                alpha=0.8,
+                zorder=4,
             )
-        )
-    first = np.r_[True, ~same]
-    last = np.r_[~same, True]
-    multi = ~(first & last)
-    ax.scatter(
-        x[first & multi], y[first & multi], s=8, color=_TEXT_COLOUR, zorder=4, label="first visit"
-    )
-    ax.scatter(
-        x[last & multi],
-        y[last & multi],
-        s=28,
-        facecolor="none",
-        edgecolor=_TEXT_COLOUR,
-        linewidth=1.0,
-        zorder=4,
-        label="last visit",
-    )
+            for s_ in pd.unique(sex[i0]):
+                ax.plot(
+                    [],
+                    [],
+                    color=SEX_COLOURS[s_],
+                    marker="o",
+                    markersize=3,
+                    label=f"{SEX_LABELS[s_]}: first visit (dot) to last (arrow)",
+                )
     return max(n_patients - max_paths, 0)
 
 

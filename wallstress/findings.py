@@ -63,14 +63,41 @@ def make(
     return pd.DataFrame(
         {
             "row": rows,
-            "column": np.full(n, column, dtype=object),
-            "field": np.full(n, field, dtype=object),
+            "column": _constant_text(column, n),
+            "field": _constant_text(field, n),
             "value": value_text,
-            "severity": np.full(n, severity, dtype=object),
-            "code": np.full(n, code, dtype=object),
-            "message": np.full(n, message, dtype=object),
+            "severity": _constant_text(severity, n),
+            "code": _constant_text(code, n),
+            "message": _constant_text(message, n),
         }
     )
+
+
+# pandas >= 3 stores text columns as pyarrow strings: converting a long object array costs one
+# Python-level pass per cell, while a repeated pyarrow scalar is built in C. Same dtype, same values.
+_FAST_CONSTANT_MIN_ROWS = 1024
+
+
+def _text_dtype():
+    dtype = pd.DataFrame({"x": np.array(["a"], dtype=object)})["x"].dtype
+    if getattr(dtype, "storage", None) != "pyarrow":
+        return None
+    try:
+        import pyarrow as pa
+    except ImportError:  # pragma: no cover - pandas' pyarrow strings imply pyarrow
+        return None
+    return dtype, pa
+
+
+_TEXT = _text_dtype()
+
+
+def _constant_text(text: str, n: int):
+    """``n`` copies of ``text`` as a text column (the dtype pandas would infer for the object array)."""
+    if _TEXT is None or n < _FAST_CONSTANT_MIN_ROWS:
+        return np.full(n, text, dtype=object)
+    dtype, pa = _TEXT
+    return pd.array(pa.repeat(pa.scalar(str(text), type=pa.large_string()), n), dtype=dtype)
 
 
 def _as_text(v) -> str:
@@ -93,14 +120,38 @@ def concat(parts) -> pd.DataFrame:
 
 
 def flags_per_row(findings: pd.DataFrame, n_rows: int) -> pd.Series:
-    """The ``flags`` column: each row's finding codes, unique, in order of appearance, ';'-separated."""
-    flags = pd.Series([""] * n_rows, dtype=object)
-    rowwise = findings[findings["row"] >= 0]
-    if len(rowwise):
-        joined = (
-            rowwise.drop_duplicates(["row", "code"])
-            .groupby("row", sort=False)["code"]
-            .agg(";".join)
-        )
-        flags.iloc[joined.index.to_numpy()] = joined.to_numpy()
-    return flags
+    """The ``flags`` column: each row's finding codes, unique, in order of appearance, ';'-separated.
+
+    Vectorised: the (row, code) pairs are de-duplicated and ranked within their row with numpy; each
+    distinct sequence of codes (there are few) is joined once and broadcast to its rows.
+    """
+    flags = np.full(n_rows, "", dtype=object)
+    rowpos = findings["row"].to_numpy(dtype="int64")
+    keep = rowpos >= 0
+    if keep.any():
+        rows = rowpos[keep]
+        code_id, code_names = pd.factorize(findings["code"].to_numpy(dtype=object)[keep])
+        n_codes = len(code_names)
+        # first occurrence of each (row, code), in order of appearance (hash-based, no sort)
+        first = ~pd.Index(rows * n_codes + code_id).duplicated()
+        rows, code_id = rows[first], code_id[first]
+        if rows.size > 1 and (rows[1:] < rows[:-1]).any():
+            order = np.argsort(rows, kind="stable")
+            rows, code_id = rows[order], code_id[order]
+        starts = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]])
+        lengths = np.diff(np.r_[starts, rows.size])
+        rank = np.arange(rows.size) - np.repeat(starts, lengths)
+        width = int(lengths.max())
+        grid = np.full((starts.size, width), -1, dtype="int64")
+        grid[np.repeat(np.arange(starts.size), lengths), rank] = code_id
+        base = n_codes + 1
+        if width * np.log2(base) < 62:  # each row's code sequence as one integer
+            key = (grid + 1) @ (base ** np.arange(width, dtype="int64"))
+            inverse, uniques = pd.factorize(key)
+            combos = grid[np.unique(inverse, return_index=True)[1]]
+        else:
+            combos, inverse = np.unique(grid, axis=0, return_inverse=True)
+        names = np.asarray(code_names, dtype=object)
+        texts = np.array([";".join(names[c[c >= 0]]) for c in combos] + [""], dtype=object)[:-1]
+        flags[rows[starts]] = texts[np.asarray(inverse).ravel()]
+    return pd.Series(flags, dtype=object)

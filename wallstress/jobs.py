@@ -155,13 +155,21 @@ def report_file(
     return write_report(analysis, Path(out), tracking=tracking, figures_dir=figures_dir)
 
 
-def calibrate_file(path: str | Path, out: str | Path, options: Options | None = None) -> JobResult:
+def calibrate_file(
+    path: str | Path,
+    out: str | Path,
+    options: Options | None = None,
+    *,
+    min_per_sex: int = 120,
+    allow_small: bool = False,
+) -> JobResult:
     """A lab's own reference set from its healthy subjects."""
     from .calibrate import calibrate, write_set
 
     options = options or Options()
     _, analysis = _read_and_analyse(path, options)
-    cal = calibrate(analysis, base_set=options.reference, lab_name=Path(path).stem)
+    cal = calibrate(analysis, base_set=options.reference, lab_name=Path(path).stem, min_per_sex=min_per_sex,
+                    allow_small=allow_small, source_file=Path(path).name)
     written = write_set(cal, Path(out))
     return JobResult(analysis, [written], list(cal.notes))
 
@@ -202,7 +210,7 @@ def run_demo(folder: str | Path = "wallstress-demo") -> JobResult:
         from .calibrate import calibrate, write_set
 
         _, normals = _read_and_analyse(samples / "fernhill_normals.csv", Options())
-        cal = calibrate(normals, lab_name="fernhill_normals", allow_small=True)
+        cal = calibrate(normals, lab_name="fernhill_normals", allow_small=True, source_file="fernhill_normals.csv")
         p = write_set(cal, folder / "fernhill_own_limits.csv")
         notes.append(f"lab's own limits from {normals.n_rows} healthy volunteers -> {p.name} "
                      "(use it with --reference)")

@@ -123,16 +123,12 @@ PATIENT_COLUMNS: tuple[str, ...] = (
     "patient_id",
     "sex",
     "n_visits",
-    "first_date",
-    "last_date",
     "span_years",
     "lv_mass_first_g",
     "lv_mass_last_g",
     "lv_mass_change_g",
     "lv_mass_real_change",
     "lv_mass_slope_g_per_year",
-    "lvmi_bsa_first_g_m2",
-    "lvmi_bsa_last_g_m2",
     "geometry_first",
     "geometry_last",
     "verdict",
@@ -178,6 +174,7 @@ table.kv th { width: 22em; }
 .sev-error { color: #a33a00; font-weight: 600; }
 .sev-warning { color: #8a5a00; }
 .sev-note { color: var(--muted); }
+.scroll { overflow-x: auto; max-width: 100%; }
 figure { margin: 10px 0 18px; }
 figure img { max-width: 100%; height: auto; border: 1px solid var(--rule); }
 figcaption { color: var(--muted); font-size: 12.5px; margin-top: 3px; }
@@ -196,6 +193,7 @@ code { font-size: 12px; }
   section.methods { break-before: page; page-break-before: always; }
   figure, table { break-inside: avoid; page-break-inside: avoid; }
   figure img { border: none; }
+  .scroll { overflow: visible; }
 }
 """
 
@@ -260,6 +258,10 @@ def _table(df: pd.DataFrame, *, max_rows: int = MAX_TABLE_ROWS, index: bool = Fa
     shown = df.iloc[:max_rows]
     if index:
         shown = shown.reset_index()
+    shown = shown.copy()
+    for c in shown.columns:
+        if "geometry" in str(c) and not _is_num(shown[c]):
+            shown[c] = shown[c].map(lambda g: fig_mod.GEOMETRY_LABELS.get(g, g))
     nums = {c: _is_num(shown[c]) for c in shown.columns}
     short = (
         {
@@ -573,13 +575,16 @@ def _flagged_section(frame: pd.DataFrame, findings: pd.DataFrame, max_rows: int)
         }
     )
     parts.append("<h3>Findings by code</h3>" + _table(codes_table, max_rows=max_rows))
+    field = rowwise["field"].astype("string").fillna("")
+    value = rowwise["value"].astype("string").fillna("")
+    label = field.where(field != "", rowwise["column"].astype("string").fillna(""))
     grouped = (
-        rowwise.assign(_rank=rank)
+        rowwise.assign(_rank=rank, _value=(label + " = " + value).where(value != "", ""))
         .groupby("row", sort=True)
         .agg(
             _rank=("_rank", "max"),
             codes=("code", lambda s: "; ".join(dict.fromkeys(map(str, s)))),
-            why=("message", lambda s: " ".join(dict.fromkeys(map(str, s)))),
+            values=("_value", lambda s: "; ".join(x for x in dict.fromkeys(s) if x)),
         )
     )
     n_rows_found = len(grouped)
@@ -597,13 +602,13 @@ def _flagged_section(frame: pd.DataFrame, findings: pd.DataFrame, max_rows: int)
             out[c] = vals
     out["severity"] = grouped["_rank"].astype(int).map(names).to_numpy()
     out["codes"] = grouped["codes"].to_numpy()
-    out["why"] = grouped["why"].to_numpy()
+    out["values"] = grouped["values"].to_numpy()
     n = len(out)
     parts.append(
         f"<h3>Rows with an error or a warning</h3><p>{n_rows_found} row(s) have findings: "
         f"{n_err} with an error, {n - n_err} with a warning, {n_notes_only} with notes only "
-        "(notes are listed by code above). Errors first; data row 1 is the first row under the "
-        "headers.</p>"
+        "(notes are listed by code above). What each code means is in the table above. Errors "
+        "first; data row 1 is the first row under the headers.</p>"
     )
     if not n:
         parts.append("<p>No row has an error or a warning.</p></section>")
@@ -617,7 +622,7 @@ def _flagged_section(frame: pd.DataFrame, findings: pd.DataFrame, max_rows: int)
         for c in shown.columns:
             if c == "severity":
                 cells.append(f'<td class="sev-{_e(d[c])}">{_e(d[c])}</td>')
-            elif c != "why":
+            elif c not in ("values", "codes"):
                 cells.append(f'<td class="nw">{_e(d[c])}</td>')
             else:
                 cells.append(f"<td>{_e(d[c])}</td>")
@@ -694,8 +699,8 @@ def _cohort_section(tracking, reference_set, figs: _Figures) -> str:
                         visits.iloc[0:0], reference_set, mass_index=mass_index, paths=visits
                     ),
                     "geometry_paths",
-                    "Each patient's path on the geometry plane, first visit (dot) to last "
-                    "(open circle).",
+                    "Each patient's move on the geometry plane: an arrow from the first visit "
+                    "(dot) to the last.",
                 )
             )
     for name, heading in (

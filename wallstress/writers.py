@@ -542,8 +542,22 @@ def _lossy_note(lossy: list[str], src_name: str, written: str) -> str:
     )
 
 
+def _with_sheet_rows(parts) -> list:
+    """Findings tables get ``results_sheet_row``: the 1-based row of the results sheet (header = 1)."""
+    out = []
+    for p in parts:
+        if p.key == "findings" and "row" in p.frame.columns and "results_sheet_row" not in p.frame:
+            frame = p.frame.copy()
+            rows = pd.to_numeric(frame["row"], errors="coerce")
+            frame["results_sheet_row"] = (rows + 2).where(rows >= 0).astype("Int64")
+            p = _Part(p.sheet, p.key, frame, p.unit_columns)
+        out.append(p)
+    return out
+
+
 def _write_xlsx(out, parts, methods, source, src_path, methods_sheet) -> WriteReport:
     report = WriteReport()
+    parts = _with_sheet_rows(parts)
     if _is_workbook_source(source, src_path):
         lossy = safety.lossy_workbook_parts(src_path)
         if lossy:
@@ -571,6 +585,7 @@ def _write_in_place(out_path, parts, methods, source, src_path, methods_sheet) -
     if not src_path.is_file():
         raise OutputError(f"--in-place: the workbook {str(src_path)!r} does not exist any more")
     report = WriteReport()
+    parts = _with_sheet_rows(parts)
     lossy = safety.lossy_workbook_parts(src_path)
     if lossy or src_path.suffix.lower() != ".xlsx":
         separate = src_path.with_name(f"{src_path.stem}.wallstress-results.xlsx")
