@@ -353,7 +353,7 @@ def test_report_reference_set_with_sources_vs_lang_2015(full_report):
     """
     _, doc, _ = full_report
     methods = doc[doc.index('id="methods"') :]
-    assert "&gt; 95" in methods and "&gt; 115" in methods and "&gt; 0.420" in methods
+    assert "&gt; 95<" in methods and "&gt; 115<" in methods and "&gt; 0.42<" in methods
     assert "Lang RM et al." in methods
     assert "Reference set: ase_eacvi_2015" in methods
 

@@ -219,9 +219,25 @@ _NUM_RE = r"^([+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?)\s*(\S.*)?$"
 
 
 def _as_text(s: pd.Series) -> pd.Series:
-    """Values as stripped text (object dtype), NaN kept."""
-    out = s.astype(object).where(s.notna())
-    return out.astype("str").str.strip().astype(object).where(s.notna())
+    """Values as stripped text (pandas ``str`` dtype, vectorised string methods), NaN kept."""
+    if not pd.api.types.is_string_dtype(s.dtype) or s.dtype == object:
+        s = s.astype(object).where(s.notna()).astype("str")
+    return s.str.strip().reset_index(drop=True)
+
+
+def _factorize(t: pd.Series) -> tuple[np.ndarray, pd.Series]:
+    """Codes (-1 for NaN) and the distinct values: slow text parsing runs once per distinct value."""
+    codes, uniq = pd.factorize(t, use_na_sentinel=True)
+    return codes, pd.Series(np.asarray(uniq, dtype=object), dtype="str")
+
+
+def _expand(values: np.ndarray, codes: np.ndarray, fill) -> np.ndarray:
+    out = np.asarray(values)[np.where(codes >= 0, codes, 0)] if len(values) else None
+    if out is None:
+        return np.full(len(codes), fill, dtype=np.asarray(values).dtype if len(values) else object)
+    out = out.copy()
+    out[codes < 0] = fill
+    return out
 
 
 def _is_missing_text(t: pd.Series) -> np.ndarray:
@@ -258,7 +274,18 @@ def parse_numbers(s: pd.Series, quantity: str = "") -> tuple[np.ndarray, np.ndar
         bad = ~np.isfinite(v) & ~np.isnan(v)
         v = np.where(bad, np.nan, v)
         return v, nan, bad
-    t = _as_text(s)
+    codes, uniq = _factorize(_as_text(s))
+    v_u, f_u, bad_u = _numbers_from_text(uniq, quantity)
+    return (
+        _expand(v_u, codes, np.nan).astype("float64"),
+        _expand(f_u, codes, np.nan).astype("float64"),
+        _expand(bad_u, codes, False).astype(bool),
+    )
+
+
+def _numbers_from_text(t: pd.Series, quantity: str):
+    n = len(t)
+    nan = np.full(n, np.nan)
     missing = _is_missing_text(t)
     ext = t.str.extract(_NUM_RE)
     numtxt = ext[0].str.replace(",", ".", regex=False)
@@ -333,7 +360,7 @@ def _assemble(y, m, d, hh=None, mm=None, ss=None) -> pd.Series:
     parts = {"year": y, "month": m, "day": d}
     for k, v in (("hour", hh), ("minute", mm), ("second", ss)):
         if v is not None:
-            parts[k] = v.fillna(0)
+            parts[k] = pd.to_numeric(v, errors="coerce").fillna(0)
     df = pd.DataFrame(parts).astype("float64")
     ok = df[["year", "month", "day"]].notna().all(axis=1)
     res = pd.Series(pd.NaT, index=df.index, dtype="datetime64[ns]")
@@ -385,8 +412,14 @@ def _from_serial(v: np.ndarray) -> tuple[pd.Series, np.ndarray]:
 
 
 def _dates_from_text(s: pd.Series, probs: dict) -> tuple[pd.Series, dict]:
-    n = len(s)
-    t = _as_text(s).reset_index(drop=True)
+    codes, uniq = _factorize(_as_text(s))
+    out_u, probs_u = _dates_from_unique(uniq, {k: np.zeros(len(uniq), bool) for k in probs})
+    out = pd.Series(_expand(out_u.to_numpy(dtype="datetime64[ns]"), codes, np.datetime64("NaT")))
+    return out.astype("datetime64[ns]"), {k: _expand(v, codes, False).astype(bool) for k, v in probs_u.items()}
+
+
+def _dates_from_unique(t: pd.Series, probs: dict) -> tuple[pd.Series, dict]:
+    n = len(t)
     missing = _is_missing_text(t)
     out = pd.Series(pd.NaT, index=range(n), dtype="datetime64[ns]")
     done = missing.copy()

@@ -243,6 +243,14 @@ def _e(v) -> str:
     return html.escape(_fmt(v), quote=True)
 
 
+def _g(v) -> str:
+    """A reference value as printed in its table (no rounding, no padding): 0.42, 95, -0.016."""
+    try:
+        return html.escape(f"{float(v):g}")
+    except (TypeError, ValueError):
+        return _e(v)
+
+
 def _label(column) -> str:
     return html.escape(COLUMN_LABELS.get(str(column), str(column)), quote=True)
 
@@ -783,7 +791,10 @@ def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> s
             if _fmt(verdict) or _fmt(text):
                 parts.append(f'<p class="verdict">{_e(verdict)}</p><p>{_e(text)}</p>')
             extra = [
-                (COLUMN_LABELS.get(c, c), _e(row[c]))
+                (
+                    COLUMN_LABELS.get(c, c),
+                    _e(fig_mod.GEOMETRY_LABELS.get(row[c], row[c]) if "geometry" in c else row[c]),
+                )
                 for c in (*PATIENT_COLUMNS, "mass_verdict", "geometry_verdict")
                 if c in row.index
                 and c not in ("patient_id", "verdict", "verdict_text")
@@ -797,7 +808,7 @@ def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> s
                 f"trend_{k:04d}_{_safe_stem(pid)}",
                 f"LV mass index over time, patient {pid}; dashed line: the limit for the "
                 "patient's sex.",
-                dpi=80,
+                dpi=96,
             )
         )
         cols = [c for c in (*VISIT_COLUMNS, *VISIT_EXTRA_COLUMNS) if c in v.columns]
@@ -830,7 +841,7 @@ def _methods_section(analysis, reference_set, ref_problem: str) -> str:
                     continue
                 rows.append(
                     f"<tr><td>{_label(m)}</td><td>{_e(fig_mod.SEX_LABELS[s])}</td>"
-                    f'<td class="num">{_e(c.comparison)} {_e(c.value)}</td>'
+                    f'<td class="num">{_e(c.comparison)} {_g(c.value)}</td>'
                     f"<td>{_e(c.source)}</td><td>{_verified_text(c.verified)}</td></tr>"
                 )
                 if c.verified != "published":
@@ -849,7 +860,7 @@ def _methods_section(analysis, reference_set, ref_problem: str) -> str:
         for key, c in _coefficients(reference_set, model).items():
             coef_rows.append(
                 f"<tr><td>{_e(model)}</td><td>{_e(key)}</td>"
-                f'<td class="num">{_e(getattr(c, "value", c))} {_e(getattr(c, "unit", ""))}</td>'
+                f'<td class="num">{_g(getattr(c, "value", c))} {_e(getattr(c, "unit", ""))}</td>'
                 f"<td>{_e(getattr(c, 'source', ''))}</td>"
                 f"<td>{_verified_text(getattr(c, 'verified', None))}</td></tr>"
             )
@@ -868,7 +879,7 @@ def _methods_section(analysis, reference_set, ref_problem: str) -> str:
     parts.append('<h3 id="unverified">Values from memory or otherwise unverified</h3>')
     if unverified_rows:
         lis = "".join(
-            f"<li><b>{_e(what)}</b> = {_e(val)}: {_verified_text(st)}; {_e(src)}</li>"
+            f"<li><b>{_e(what)}</b> = {_g(val)}: {_verified_text(st)}; {_e(src)}</li>"
             for what, val, st, src in unverified_rows
         )
         parts.append(f"<ul>{lis}</ul>")
