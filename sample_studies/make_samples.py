@@ -28,17 +28,28 @@ from openpyxl.workbook.defined_name import DefinedName
 
 HERE = Path(__file__).resolve().parent
 LAB_HEADERS = {
-    "study_id": "Exam ID", "patient_id": "Patient", "study_date": "Exam date", "sex": "Gender",
-    "age_years": "Age (y)", "height_cm": "Height (cm)", "weight_kg": "Weight (kg)",
-    "sbp_mmhg": "SBP (mmHg)", "dbp_mmhg": "DBP (mmHg)", "hr_bpm": "HR (bpm)",
-    "ivsd_cm": "IVSd (mm)", "lvidd_cm": "LVIDd (mm)", "pwd_cm": "LVPWd (mm)",
-    "ivss_cm": "IVSs (mm)", "lvids_cm": "LVIDs (mm)", "pws_cm": "LVPWs (mm)",
+    "study_id": "Exam ID",
+    "patient_id": "Patient",
+    "study_date": "Exam date",
+    "sex": "Gender",
+    "age_years": "Age (y)",
+    "height_cm": "Height (cm)",
+    "weight_kg": "Weight (kg)",
+    "sbp_mmhg": "SBP (mmHg)",
+    "dbp_mmhg": "DBP (mmHg)",
+    "hr_bpm": "HR (bpm)",
+    "ivsd_cm": "IVSd (mm)",
+    "lvidd_cm": "LVIDd (mm)",
+    "pwd_cm": "LVPWd (mm)",
+    "ivss_cm": "IVSs (mm)",
+    "lvids_cm": "LVIDs (mm)",
+    "pws_cm": "LVPWs (mm)",
     "ejection_time_ms": "LVET (ms)",
 }
 
 
 def _code(rng, prefix, n, width=5):
-    return [f"{prefix}{x:0{width}d}" for x in rng.choice(10 ** width, size=n, replace=False)]
+    return [f"{prefix}{x:0{width}d}" for x in rng.choice(10**width, size=n, replace=False)]
 
 
 def _hearts(rng, n, sex, *, hypertensive=True, lvh=None):
@@ -48,19 +59,32 @@ def _hearts(rng, n, sex, *, hypertensive=True, lvh=None):
     bmi = rng.normal(28 if hypertensive else 24, 4 if hypertensive else 2.5, n).clip(18, 45)
     weight = bmi * (height / 100) ** 2
     lvh = rng.random(n) < (0.35 if hypertensive else 0.0) if lvh is None else lvh
-    wall = np.where(male, rng.normal(0.95, 0.09, n), rng.normal(0.85, 0.08, n)) + lvh * rng.normal(0.25, 0.08, n)
-    lvidd = np.where(male, rng.normal(5.0, 0.4, n), rng.normal(4.55, 0.35, n)) + lvh * rng.normal(0.2, 0.3, n)
+    wall = np.where(male, rng.normal(0.95, 0.09, n), rng.normal(0.85, 0.08, n)) + lvh * rng.normal(
+        0.25, 0.08, n
+    )
+    lvidd = np.where(male, rng.normal(5.0, 0.4, n), rng.normal(4.55, 0.35, n)) + lvh * rng.normal(
+        0.2, 0.3, n
+    )
     ivsd = wall * rng.normal(1.03, 0.06, n)
     pwd = wall * rng.normal(0.98, 0.05, n)
     sbp = rng.normal(150 if hypertensive else 118, 17 if hypertensive else 10, n)
     # shortening falls as afterload rises (invented, physiologically shaped)
-    fs = (rng.normal(0.34, 0.03, n) - 0.0015 * (sbp - sbp.mean()) - 0.04 * (lvidd - lvidd.mean())).clip(0.2, 0.46)
+    fs = (
+        rng.normal(0.34, 0.03, n) - 0.0015 * (sbp - sbp.mean()) - 0.04 * (lvidd - lvidd.mean())
+    ).clip(0.2, 0.46)
     lvids = lvidd * (1 - fs)
     dbp = sbp * rng.normal(0.6, 0.05, n)
     return {
-        "height_cm": height, "weight_kg": weight, "sbp_mmhg": sbp, "dbp_mmhg": dbp,
-        "hr_bpm": rng.normal(68, 10, n).clip(45, 110), "ivsd_cm": ivsd, "lvidd_cm": lvidd, "pwd_cm": pwd,
-        "ivss_cm": _systolic_wall(ivsd, lvidd, lvids) * rng.normal(1.0, 0.04, n), "lvids_cm": lvids,
+        "height_cm": height,
+        "weight_kg": weight,
+        "sbp_mmhg": sbp,
+        "dbp_mmhg": dbp,
+        "hr_bpm": rng.normal(68, 10, n).clip(45, 110),
+        "ivsd_cm": ivsd,
+        "lvidd_cm": lvidd,
+        "pwd_cm": pwd,
+        "ivss_cm": _systolic_wall(ivsd, lvidd, lvids) * rng.normal(1.0, 0.04, n),
+        "lvids_cm": lvids,
         "pws_cm": _systolic_wall(pwd, lvidd, lvids) * rng.normal(1.0, 0.04, n),
         "ejection_time_ms": rng.normal(295, 22, n),
     }
@@ -89,24 +113,30 @@ def lab_studies(rng) -> pd.DataFrame:
     sex = rng.choice(np.array(["F", "M"]), n)
     d = _rounded(_hearts(rng, n, sex))
     start = date(2025, 1, 6)
-    df = pd.DataFrame({
-        "study_id": _code(rng, "EX", n, 6),
-        "patient_id": _code(rng, "FH", n, 5),
-        "study_date": [start + timedelta(days=int(x)) for x in np.sort(rng.integers(0, 300, n))],
-        "sex": np.where(sex == "F", "Female", "Male"),
-        "age_years": rng.integers(28, 88, n),
-        **d,
-    })
+    df = pd.DataFrame(
+        {
+            "study_id": _code(rng, "EX", n, 6),
+            "patient_id": _code(rng, "FH", n, 5),
+            "study_date": [
+                start + timedelta(days=int(x)) for x in np.sort(rng.integers(0, 300, n))
+            ],
+            "sex": np.where(sex == "F", "Female", "Male"),
+            "age_years": rng.integers(28, 88, n),
+            **d,
+        }
+    )
     # a few rows with the problems a real export has (all invented)
-    df.loc[7, "sex"] = None                      # sex not entered
-    df.loc[19, ["lvidd_cm", "lvids_cm"]] = df.loc[19, ["lvids_cm", "lvidd_cm"]].to_numpy()  # swapped
-    df.loc[33, "pwd_cm"] = 1.1                   # typed in cm in a mm column
-    df.loc[58, "ivsd_cm"] = df.loc[58, "pwd_cm"] * 1.6   # disproportionate septum
-    df.loc[71, "sbp_mmhg"] = None                # no pressure taken
-    df.loc[90] = df.loc[89]                      # exported twice
+    df.loc[7, "sex"] = None  # sex not entered
+    df.loc[19, ["lvidd_cm", "lvids_cm"]] = df.loc[
+        19, ["lvids_cm", "lvidd_cm"]
+    ].to_numpy()  # swapped
+    df.loc[33, "pwd_cm"] = 1.1  # typed in cm in a mm column
+    df.loc[58, "ivsd_cm"] = df.loc[58, "pwd_cm"] * 1.6  # disproportionate septum
+    df.loc[71, "sbp_mmhg"] = None  # no pressure taken
+    df.loc[90] = df.loc[89]  # exported twice
     df.loc[90, "study_id"] = df.loc[89, "study_id"] + "b"
-    df.loc[120, "weight_kg"] = 870               # typing error
-    df.loc[150, "study_id"] = "=1+1"             # text that a spreadsheet would run as a formula
+    df.loc[120, "weight_kg"] = 870  # typing error
+    df.loc[150, "study_id"] = "=1+1"  # text that a spreadsheet would run as a formula
     return df.rename(columns=LAB_HEADERS)
 
 
@@ -130,16 +160,25 @@ def followup(rng) -> pd.DataFrame:
             lvidd = base["lvidd_cm"][0] + noise(0.12) + (0.03 * yr if trend == "progress" else 0)
             fs = float(np.clip(rng.normal(0.34, 0.03), 0.22, 0.45))
             sbp = base["sbp_mmhg"][0] - (12 if trend == "regress" and v else 0) + noise(8)
-            rows.append({
-                "patient_id": pid, "visit_date": first + timedelta(days=int(yr * 365.25)),
-                "sex": sex, "age": age0 + int(yr), "height_cm": round(float(base["height_cm"][0]), 0),
-                "weight_kg": round(float(base["weight_kg"][0] + noise(1.5)), 1),
-                "sbp": round(float(sbp)), "dbp": round(float(sbp * 0.6 + noise(3))),
-                "hr": round(float(np.clip(rng.normal(66, 8), 45, 100))),
-                "ivsd_cm": round(float(ivsd), 2), "lvidd_cm": round(float(lvidd), 2), "pwd_cm": round(float(pwd), 2),
-                "ivss_cm": round(float(ivsd * 1.4), 2), "lvids_cm": round(float(lvidd * (1 - fs)), 2),
-                "pws_cm": round(float(pwd * 1.55), 2),
-            })
+            rows.append(
+                {
+                    "patient_id": pid,
+                    "visit_date": first + timedelta(days=int(yr * 365.25)),
+                    "sex": sex,
+                    "age": age0 + int(yr),
+                    "height_cm": round(float(base["height_cm"][0]), 0),
+                    "weight_kg": round(float(base["weight_kg"][0] + noise(1.5)), 1),
+                    "sbp": round(float(sbp)),
+                    "dbp": round(float(sbp * 0.6 + noise(3))),
+                    "hr": round(float(np.clip(rng.normal(66, 8), 45, 100))),
+                    "ivsd_cm": round(float(ivsd), 2),
+                    "lvidd_cm": round(float(lvidd), 2),
+                    "pwd_cm": round(float(pwd), 2),
+                    "ivss_cm": round(float(ivsd * 1.4), 2),
+                    "lvids_cm": round(float(lvidd * (1 - fs)), 2),
+                    "pws_cm": round(float(pwd * 1.55), 2),
+                }
+            )
     return pd.DataFrame(rows)
 
 
@@ -147,7 +186,9 @@ def normals(rng) -> pd.DataFrame:
     n = 180
     sex = np.repeat(np.array(["F", "M"]), n // 2)
     d = _hearts(rng, n, sex, hypertensive=False, lvh=np.zeros(n, bool))
-    df = pd.DataFrame({"study_id": _code(rng, "NV", n, 5), "sex": sex, "age_years": rng.integers(22, 65, n), **d})
+    df = pd.DataFrame(
+        {"study_id": _code(rng, "NV", n, 5), "sex": sex, "age_years": rng.integers(22, 65, n), **d}
+    )
     return df.round(3)
 
 
@@ -174,7 +215,9 @@ def _write_lab_workbook(df: pd.DataFrame, path: Path) -> None:
     notes["A3"], notes["B3"] = "Studies in this export", f"=COUNTA(Studies!A2:A{len(df) + 1})"
     notes["A4"], notes["B4"] = "Mean LVIDd [mm]", f"=AVERAGE(Studies!L2:L{len(df) + 1})"
     notes["B3"].comment = Comment("A formula of the lab's own: it must survive.", "Fernhill lab")
-    wb.defined_names["study_rows"] = DefinedName("study_rows", attr_text=f"Studies!$A$2:$Q${len(df) + 1}")
+    wb.defined_names["study_rows"] = DefinedName(
+        "study_rows", attr_text=f"Studies!$A$2:$Q${len(df) + 1}"
+    )
     wb.save(path)
 
 

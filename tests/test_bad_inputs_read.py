@@ -128,3 +128,56 @@ def test_bad_max_rows():
     """A wrong call names the argument and the fix. Common practice, no source."""
     with pytest.raises(InputError, match=r"max_rows=-1 .*whole number"):
         read_studies("x.csv", max_rows=-1)
+
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+_PIECES = st.sampled_from(
+    [
+        "study_id",
+        "LVIDd (mm)",
+        "IVSd",
+        "PWd",
+        "height",
+        "weight",
+        "sex",
+        ",",
+        ";",
+        "\t",
+        "\n",
+        '"',
+        "4,8",
+        "48",
+        "#N/A",
+        "F",
+        "\r\n",
+        "",
+        " ",
+        "=1+1",
+        "\ufeff",
+        "é",
+        "03/04/2020",
+    ]
+)
+
+
+@settings(
+    max_examples=120, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(
+    st.one_of(st.lists(_PIECES, max_size=60).map("".join), st.text(max_size=200)),
+    st.sampled_from(["utf-8", "cp1252", "utf-16"]),
+)
+def test_fuzz_csv_text(tmp_path, text, encoding):
+    """Fuzzing: any text file ends in a table or an InputError, never another exception; every
+    finding row points into the table."""
+    p = tmp_path / "fuzz.csv"
+    p.write_bytes(text.encode(encoding, errors="replace"))
+    try:
+        st_ = read_studies(p)
+    except InputError as exc:
+        assert "\n" not in str(exc)
+        return
+    assert st_.findings["row"].between(-1, max(len(st_.table) - 1, -1)).all()
+    assert len(set(st_.table.columns)) == st_.table.shape[1]

@@ -20,8 +20,14 @@ def test_geometry_4_quadrants_vs_ganau_1992():
     rwt = [0.35, 0.50, 0.35, 0.50, 0.35, 0.50]
     sex = ["F", "F", "F", "F", "M", "M"]
     got = classify.geometry_4(lvmi, rwt, sex, L15)
-    assert list(got) == ["normal", "concentric_remodelling", "eccentric_hypertrophy",
-                         "concentric_hypertrophy", "normal", "concentric_remodelling"]
+    assert list(got) == [
+        "normal",
+        "concentric_remodelling",
+        "eccentric_hypertrophy",
+        "concentric_hypertrophy",
+        "normal",
+        "concentric_remodelling",
+    ]
 
 
 def test_exactly_at_cutoff_follows_each_sets_comparison():
@@ -32,15 +38,20 @@ def test_exactly_at_cutoff_follows_each_sets_comparison():
     assert classify.abnormal([95.0], ["F"], L15, "lvmi_bsa_g_m2")[0] == 0.0
 
 
-@given(st.sampled_from(["ase_eacvi_2015", "ase_eae_2005", "esc_esh_2018_h27"]),
-       st.sampled_from(["rwt", "lvmi_bsa_g_m2", "lvmi_h27_g_m2_7"]), st.sampled_from(["F", "M"]))
+@given(
+    st.sampled_from(["ase_eacvi_2015", "ase_eae_2005", "esc_esh_2018_h27"]),
+    st.sampled_from(["rwt", "lvmi_bsa_g_m2", "lvmi_h27_g_m2_7"]),
+    st.sampled_from(["F", "M"]),
+)
 def test_property_at_cutoff(set_name, measure, sex):
     """Property: a value exactly at a set's abnormal threshold is abnormal iff the set's comparison is '>='."""
     s = references.load_set(set_name)
     cut = s.cutoff(measure, sex)
     if cut is None:
         return
-    assert classify.abnormal([cut.value], [sex], s, measure)[0] == (1.0 if cut.comparison == ">=" else 0.0)
+    assert classify.abnormal([cut.value], [sex], s, measure)[0] == (
+        1.0 if cut.comparison == ">=" else 0.0
+    )
 
 
 def test_missing_sex_leaves_class_empty():
@@ -70,9 +81,15 @@ def test_geometry_8_vs_gaasch_zile_2011():
     """Gaasch WH, Zile MR, J Am Coll Cardiol 2011;58:1733: with LVH, RWT and EDV index both increased is
     mixed hypertrophy; increased EDV with normal RWT is dilated hypertrophy; normal mass with dilation
     is eccentric remodelling (categories checked; thresholds from Lang 2015)."""
-    got = classify.geometry_8([120, 120, 80, 120], [0.5, 0.35, 0.35, 0.35], [70, 70, 70, 50], ["F"] * 4, L15)
-    assert list(got) == ["mixed_hypertrophy", "dilated_hypertrophy", "eccentric_remodelling",
-                         "eccentric_hypertrophy"]
+    got = classify.geometry_8(
+        [120, 120, 80, 120], [0.5, 0.35, 0.35, 0.35], [70, 70, 70, 50], ["F"] * 4, L15
+    )
+    assert list(got) == [
+        "mixed_hypertrophy",
+        "dilated_hypertrophy",
+        "eccentric_remodelling",
+        "eccentric_hypertrophy",
+    ]
 
 
 def test_geometry_8_empty_without_dilation_limit():

@@ -48,7 +48,9 @@ def test_analyse_csv_to_xlsx_input_unchanged(study_csv, tmp_path):
 
 
 def test_strict_exits_3_on_error_rows(study_csv, tmp_path):
-    r = runner.invoke(app, ["analyse", str(study_csv), "-o", str(tmp_path / "o.csv"), "--strict", "-q"])
+    r = runner.invoke(
+        app, ["analyse", str(study_csv), "-o", str(tmp_path / "o.csv"), "--strict", "-q"]
+    )
     assert r.exit_code == 3
 
 
@@ -74,7 +76,9 @@ def test_output_equal_to_input_is_refused(study_csv):
 
 
 def test_unknown_reference_set_says_which_exist(study_csv, tmp_path):
-    r = runner.invoke(app, ["analyse", str(study_csv), "-o", str(tmp_path / "o.csv"), "--reference", "nope"])
+    r = runner.invoke(
+        app, ["analyse", str(study_csv), "-o", str(tmp_path / "o.csv"), "--reference", "nope"]
+    )
     assert r.exit_code == 1 and "ase_eacvi_2015" in r.output
 
 
@@ -104,3 +108,20 @@ def test_demo_runs_end_to_end(tmp_path):
     made = {p.name for p in (tmp_path / "demo").iterdir()}
     assert "fernhill_echo_lab.wallstress.xlsx" in made and "fernhill_followup.report.html" in made
     assert "clinician" in r.output
+
+
+def test_report_draws_cutoffs_from_any_folder(tmp_path, monkeypatch):
+    """Regression: the bundled set must be found by name wherever the command runs (Lang 2015: > 95
+    g/m2 women, > 115 g/m2 men, drawn on the geometry plane)."""
+    from wallstress.figures import geometry_plane
+    from wallstress.jobs import _read_and_analyse
+    from wallstress.options import Options
+    from wallstress.report import _resolve_reference_set
+
+    monkeypatch.chdir(tmp_path)
+    _, analysis = _read_and_analyse(sample_dir() / "fernhill_echo_lab.xlsx", Options())
+    ref, problem = _resolve_reference_set(analysis, None)
+    assert problem == "" and ref.name == "ase_eacvi_2015"
+    fig = geometry_plane(analysis.frame(), ref)
+    xs = {round(line.get_xdata()[0], 6) for line in fig.axes[0].get_lines()}
+    assert {95.0, 115.0} <= xs

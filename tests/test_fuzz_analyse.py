@@ -15,14 +15,28 @@ import wallstress
 from wallstress.errors import InputError
 from wallstress.schema import FIELDS
 
-HEADERS = [f.name for f in FIELDS] + ["IVSd (mm)", "LVIDd [cm]", "Gender", "Weight (lb)", "SBP (kPa)",
-                                      "notes", "", "  ", "LVIDd (mm)", "Höhe", "=cmd()", "123"]
+HEADERS = [f.name for f in FIELDS] + [
+    "IVSd (mm)",
+    "LVIDd [cm]",
+    "Gender",
+    "Weight (lb)",
+    "SBP (kPa)",
+    "notes",
+    "",
+    "  ",
+    "LVIDd (mm)",
+    "Höhe",
+    "=cmd()",
+    "123",
+]
 CELLS = st.one_of(
     st.none(),
     st.floats(allow_nan=True, allow_infinity=True),
-    st.integers(min_value=-10**12, max_value=10**12),
+    st.integers(min_value=-(10**12), max_value=10**12),
     st.text(max_size=12),
-    st.sampled_from(["F", "m", "female", "4,8", "48 mm", "#DIV/0!", "=1+1", "2024-02-30", "03/04/2020", "NaN"]),
+    st.sampled_from(
+        ["F", "m", "female", "4,8", "48 mm", "#DIV/0!", "=1+1", "2024-02-30", "03/04/2020", "NaN"]
+    ),
     st.booleans(),
 )
 
@@ -31,9 +45,11 @@ CELLS = st.one_of(
 def tables(draw):
     n_cols = draw(st.integers(min_value=0, max_value=8))
     n_rows = draw(st.integers(min_value=0, max_value=12))
-    headers = draw(st.lists(st.sampled_from(HEADERS) | st.text(max_size=10), min_size=n_cols, max_size=n_cols))
+    headers = draw(
+        st.lists(st.sampled_from(HEADERS) | st.text(max_size=10), min_size=n_cols, max_size=n_cols)
+    )
     data = {}
-    for i, h in enumerate(headers):
+    for h in headers:
         data[f"{h}"] = draw(st.lists(CELLS, min_size=n_rows, max_size=n_rows))
     df = pd.DataFrame(data) if data else pd.DataFrame(index=range(n_rows))
     if len(set(data)) < n_cols:  # duplicate headers collapse in a dict; keep the frame as built
@@ -51,11 +67,11 @@ def test_analyse_never_loses_or_reorders_rows(df):
         return
     assert len(out) == len(df)
     assert list(out.index) == list(df.index)
-    pd.testing.assert_frame_equal(df, before)                  # input not mutated
+    pd.testing.assert_frame_equal(df, before)  # input not mutated
     pd.testing.assert_frame_equal(out.iloc[:, : df.shape[1]], before, check_column_type=False)
     assert out["flags"].map(lambda x: isinstance(x, str)).all()
     numeric = out[["lv_mass_g", "rwt", "mess_kdyn_cm2", "cess_kdyn_cm2"]].to_numpy(dtype=float)
-    assert not np.isinf(numeric).any()                         # invalid input gives NaN, never inf
+    assert not np.isinf(numeric).any()  # invalid input gives NaN, never inf
 
 
 def test_duplicate_headers_are_kept():

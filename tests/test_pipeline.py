@@ -48,7 +48,9 @@ def test_exact_stress_constant_is_1_24_percent_lower(worked_example):
     """Unit definition (1 mmHg = 133.322387 Pa): the exact factor 1.33322 is 1.24 % below the published 1.35
     (sources.md says about 1.5 %; the arithmetic gives 1.24 %)."""
     pub = wallstress.analyse(worked_example).iloc[0]["cess_kdyn_cm2"]
-    exact = wallstress.analyse(worked_example, Options(stress_constant="exact")).iloc[0]["cess_kdyn_cm2"]
+    exact = wallstress.analyse(worked_example, Options(stress_constant="exact")).iloc[0][
+        "cess_kdyn_cm2"
+    ]
     assert exact / pub == pytest.approx(1.33322387415 / 1.35, rel=1e-6)
 
 
@@ -68,17 +70,17 @@ def test_cuff_readings_are_averaged():
 
 def test_rows_in_order_cells_unchanged_extra_columns_kept():
     rows = [canonical_row(study_id=f"S{i}", lvidd_cm=4.0 + i / 10) for i in range(5)]
-    rows[2]["ivsd_cm"] = np.nan            # cannot compute mass
-    rows[3]["lvidd_cm"] = -1.0             # impossible
+    rows[2]["ivsd_cm"] = np.nan  # cannot compute mass
+    rows[3]["lvidd_cm"] = -1.0  # impossible
     df = pd.DataFrame(rows)
     df["comment"] = ["a", None, "=1+1", "x", "y"]
     df.index = [10, 11, 12, 13, 14]
     before = df.copy()
     out = wallstress.analyse(df)
-    pd.testing.assert_frame_equal(df, before)                       # input not mutated
-    assert list(out.columns[: df.shape[1]]) == list(df.columns)     # user's columns first, in order
-    assert list(out.columns[df.shape[1]:]) == list(OUTPUT_COLUMNS)
-    pd.testing.assert_frame_equal(out[df.columns], before)          # own cells unchanged
+    pd.testing.assert_frame_equal(df, before)  # input not mutated
+    assert list(out.columns[: df.shape[1]]) == list(df.columns)  # user's columns first, in order
+    assert list(out.columns[df.shape[1] :]) == list(OUTPUT_COLUMNS)
+    pd.testing.assert_frame_equal(out[df.columns], before)  # own cells unchanged
     assert list(out.index) == list(df.index)
     assert np.isnan(out.loc[12, "lv_mass_g"]) and np.isnan(out.loc[13, "lv_mass_g"])
     assert "lvidd_cm_impossible" in out.loc[13, "flags"]
@@ -90,7 +92,9 @@ def test_missing_sex_is_flagged_not_guessed():
     out = wallstress.analyse(df)
     assert out.loc[0, "geometry"] == "" and out.loc[1, "geometry"] != ""
     assert "sex_missing" in out.loc[0, "flags"]
-    assert out.loc[0, "lv_mass_g"] == pytest.approx(181.976, abs=5e-4)  # sex-free measures still computed
+    assert out.loc[0, "lv_mass_g"] == pytest.approx(
+        181.976, abs=5e-4
+    )  # sex-free measures still computed
 
 
 def test_output_name_collision_is_prefixed():
@@ -105,11 +109,16 @@ def test_measured_volumes_preferred_for_edv():
     out = wallstress.analyse(df)
     assert out.loc[0, "edv_source"] == "measured" and out.loc[0, "edv_ml"] == 100.0
     assert out.loc[1, "edv_source"] == "teichholz"
-    assert "edv_from_teichholz" in out.loc[1, "flags"] and "edv_from_teichholz" not in out.loc[0, "flags"]
+    assert (
+        "edv_from_teichholz" in out.loc[1, "flags"]
+        and "edv_from_teichholz" not in out.loc[0, "flags"]
+    )
 
 
 def test_area_length_used_where_2d_present_else_linear():
-    df = pd.DataFrame([canonical_row(epi_area_cm2=40.0, endo_area_cm2=15.0, lv_length_cm=8.0), canonical_row()])
+    df = pd.DataFrame(
+        [canonical_row(epi_area_cm2=40.0, endo_area_cm2=15.0, lv_length_cm=8.0), canonical_row()]
+    )
     out = wallstress.analyse(df, Options(mass_method="area_length"))
     assert list(out["lv_mass_method"]) == ["area_length", "ase_corrected"]
     assert "mass_linear_fallback" in out.loc[1, "flags"]

@@ -33,7 +33,10 @@ def test_default_cutoffs_vs_lang_2015():
     s = references.load_set()
     assert (s.cutoff("lvmi_bsa_g_m2", "F").value, s.cutoff("lvmi_bsa_g_m2", "M").value) == (95, 115)
     assert s.cutoff("rwt", "F").value == 0.42 and s.cutoff("rwt", "F").comparison == ">"
-    assert (s.cutoff("edv_index_ml_m2", "F").value, s.cutoff("edv_index_ml_m2", "M").value) == (61, 74)
+    assert (s.cutoff("edv_index_ml_m2", "F").value, s.cutoff("edv_index_ml_m2", "M").value) == (
+        61,
+        74,
+    )
     assert s.cutoff("lvmi_bsa_g_m2", "F").verified == "published"
 
 
@@ -62,22 +65,51 @@ def test_unknown_set_lists_known():
 
 def test_lab_set_from_file(tmp_path):
     p = tmp_path / "ours.csv"
-    pd.DataFrame([
-        dict(kind="setting", measure="title", note="Our lab"),
-        dict(kind="cutoff", measure="lvmi_bsa_g_m2", sex="F", grade="increased", comparison=">=", value=90,
-             unit="g/m2", source="our normals", verified="lab"),
-        dict(kind="cutoff", measure="rwt", sex="", grade="increased", comparison=">", value=0.45,
-             unit="", source="our normals", verified="lab"),
-        dict(kind="coefficient", measure="midwall_stress_line", grade="intercept_pct", value=21.0,
-             unit="%", source="our normals", verified="lab"),
-    ]).to_csv(p, index=False)
+    pd.DataFrame(
+        [
+            dict(kind="setting", measure="title", note="Our lab"),
+            dict(
+                kind="cutoff",
+                measure="lvmi_bsa_g_m2",
+                sex="F",
+                grade="increased",
+                comparison=">=",
+                value=90,
+                unit="g/m2",
+                source="our normals",
+                verified="lab",
+            ),
+            dict(
+                kind="cutoff",
+                measure="rwt",
+                sex="",
+                grade="increased",
+                comparison=">",
+                value=0.45,
+                unit="",
+                source="our normals",
+                verified="lab",
+            ),
+            dict(
+                kind="coefficient",
+                measure="midwall_stress_line",
+                grade="intercept_pct",
+                value=21.0,
+                unit="%",
+                source="our normals",
+                verified="lab",
+            ),
+        ]
+    ).to_csv(p, index=False)
     s = references.load_set(str(p))
     assert s.title == "Our lab"
     assert s.cutoff("lvmi_bsa_g_m2", "F").comparison == ">="
     assert s.cutoff("rwt", "M").value == 0.45  # empty sex = both
     line = s.coefficients("midwall_stress_line")
     assert line["intercept_pct"].value == 21.0 and line["intercept_pct"].verified == "lab"
-    assert line["slope_pct_per_kdyn_cm2"].verified == "from_memory"  # default kept where not overridden
+    assert (
+        line["slope_pct_per_kdyn_cm2"].verified == "from_memory"
+    )  # default kept where not overridden
 
 
 @pytest.mark.parametrize(
@@ -90,8 +122,18 @@ def test_lab_set_from_file(tmp_path):
     ],
 )
 def test_malformed_lab_set_says_what_is_wrong(tmp_path, change, message):
-    row = dict(kind="cutoff", measure="rwt", sex="F", grade="increased", comparison=">", value=0.42, unit="",
-               source="x", verified="lab", note="")
+    row = dict(
+        kind="cutoff",
+        measure="rwt",
+        sex="F",
+        grade="increased",
+        comparison=">",
+        value=0.42,
+        unit="",
+        source="x",
+        verified="lab",
+        note="",
+    )
     row.update(change)
     p = tmp_path / "bad.csv"
     pd.DataFrame([row]).to_csv(p, index=False)

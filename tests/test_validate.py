@@ -28,14 +28,20 @@ def test_unusual_value_is_kept_with_warning():
 
 def test_lvids_not_below_lvidd():
     """Common practice, no source: the cavity is smaller at end-systole than at end-diastole."""
-    c, f = validate(pd.DataFrame({"lvidd_cm": [5.0, 5.0], "lvids_cm": [5.2, 3.2], "sex": ["F", "F"]}))
+    c, f = validate(
+        pd.DataFrame({"lvidd_cm": [5.0, 5.0], "lvids_cm": [5.2, 3.2], "sex": ["F", "F"]})
+    )
     assert np.isnan(c["lvids_cm"].iloc[0]) and c["lvids_cm"].iloc[1] == 3.2
     assert "lvids_not_below_lvidd" in _codes(f, 0) and "lvids_not_below_lvidd" not in _codes(f, 1)
 
 
 def test_walls_thinning_in_systole_warned():
     """Common practice, no source: walls thicken during ejection."""
-    _, f = validate(pd.DataFrame({"pwd_cm": [1.0], "pws_cm": [0.9], "ivsd_cm": [1.0], "ivss_cm": [1.3], "sex": ["F"]}))
+    _, f = validate(
+        pd.DataFrame(
+            {"pwd_cm": [1.0], "pws_cm": [0.9], "ivsd_cm": [1.0], "ivss_cm": [1.3], "sex": ["F"]}
+        )
+    )
     assert "posterior_wall_thins_in_systole" in _codes(f, 0)
     assert "septum_thins_in_systole" not in _codes(f, 0)
 
@@ -54,8 +60,14 @@ def test_pressures_swapped():
 
 
 def test_duplicates_same_patient_same_day():
-    df = pd.DataFrame({"patient_id": ["a", "a", "b"], "study_date": pd.to_datetime(["2024-01-01"] * 3),
-                       "study_id": ["1", "2", "2"], "sex": ["F"] * 3})
+    df = pd.DataFrame(
+        {
+            "patient_id": ["a", "a", "b"],
+            "study_date": pd.to_datetime(["2024-01-01"] * 3),
+            "study_id": ["1", "2", "2"],
+            "sex": ["F"] * 3,
+        }
+    )
     _, f = validate(df)
     assert {0, 1} == set(f.loc[f["code"] == "duplicate_study", "row"])
     assert {1, 2} == set(f.loc[f["code"] == "duplicate_study_id", "row"])

@@ -101,7 +101,9 @@ def _guard(fn, *args, **kwargs):
         raise typer.Exit(EXIT_INPUT) from None
 
 
-def _options(reference, bsa, mass, rwt, es_pressure, stress_constant, units, sheet, columns) -> Options:
+def _options(
+    reference, bsa, mass, rwt, es_pressure, stress_constant, units, sheet, columns
+) -> Options:
     from .jobs import read_columns_map
 
     return Options(
@@ -117,15 +119,32 @@ def _options(reference, bsa, mass, rwt, es_pressure, stress_constant, units, she
     )
 
 
-REF = typer.Option("ase_eacvi_2015", "--reference", "-r", help="Reference set name or a set CSV (see 'references').")
+REF = typer.Option(
+    "ase_eacvi_2015",
+    "--reference",
+    "-r",
+    help="Reference set name or a set CSV (see 'references').",
+)
 BSA = typer.Option(Bsa.dubois, "--bsa", help="Body surface area formula.")
-MASS = typer.Option(Mass.ase_corrected, "--mass", help="LV mass formula (2D ones need the area columns).")
-RWT = typer.Option(Rwt.posterior, "--rwt", help="Relative wall thickness: 2*PWd/LVIDd or (IVSd+PWd)/LVIDd.")
+MASS = typer.Option(
+    Mass.ase_corrected, "--mass", help="LV mass formula (2D ones need the area columns)."
+)
+RWT = typer.Option(
+    Rwt.posterior, "--rwt", help="Relative wall thickness: 2*PWd/LVIDd or (IVSd+PWd)/LVIDd."
+)
 ESP = typer.Option(EsPressure.cuff_sbp, "--es-pressure", help="End-systolic pressure estimate.")
-SC = typer.Option(StressConstant.published, "--stress-constant", help="Published constants (0.334, 1.35) or exact mmHg->kdyn/cm2.")
+SC = typer.Option(
+    StressConstant.published,
+    "--stress-constant",
+    help="Published constants (0.334, 1.35) or exact mmHg->kdyn/cm2.",
+)
 UNITS = typer.Option(Units.auto, "--units", help="Unit of LV dimensions when headers do not say.")
-SHEET = typer.Option(None, "--sheet", help="Sheet to read (default: first sheet with recognised headers).")
-COLUMNS = typer.Option(None, "--columns", help="Your headers -> our fields: CSV 'header,field' or JSON.")
+SHEET = typer.Option(
+    None, "--sheet", help="Sheet to read (default: first sheet with recognised headers)."
+)
+COLUMNS = typer.Option(
+    None, "--columns", help="Your headers -> our fields: CSV 'header,field' or JSON."
+)
 QUIET = typer.Option(False, "--quiet", "-q", help="No progress or summary on the terminal.")
 
 
@@ -143,7 +162,9 @@ def _root(
 @app.command()
 def analyse(
     studies: Path = typer.Argument(..., help="Study list: .xlsx, .csv, .ods or .parquet."),
-    out: Path = typer.Option(None, "--out", "-o", help="Output .xlsx, .csv or .parquet (default: beside the input)."),
+    out: Path = typer.Option(
+        None, "--out", "-o", help="Output .xlsx, .csv or .parquet (default: beside the input)."
+    ),
     reference: str = REF,
     bsa: Bsa = BSA,
     mass: Mass = MASS,
@@ -153,17 +174,32 @@ def analyse(
     units: Units = UNITS,
     sheet: str = SHEET,
     columns: Path = COLUMNS,
-    in_place: bool = typer.Option(False, "--in-place", help="Write into your workbook (after a backup copy beside it)."),
-    strict: bool = typer.Option(False, "--strict", help="Exit 3 when any row has an error finding."),
-    escape_formulas: bool = typer.Option(False, "--escape-formulas", help="In CSV output, prefix formula-like text with a quote."),
+    in_place: bool = typer.Option(
+        False, "--in-place", help="Write into your workbook (after a backup copy beside it)."
+    ),
+    strict: bool = typer.Option(
+        False, "--strict", help="Exit 3 when any row has an error finding."
+    ),
+    escape_formulas: bool = typer.Option(
+        False, "--escape-formulas", help="In CSV output, prefix formula-like text with a quote."
+    ),
     quiet: bool = QUIET,
 ):
     """Every measure for every study, with flags and a methods record."""
     from .jobs import analyse_file
 
-    options = _guard(_options, reference, bsa, mass, rwt, es_pressure, stress_constant, units, sheet, columns)
-    result = _guard(analyse_file, studies, out, options, in_place=in_place,
-                    escape_formulas=escape_formulas, quiet=quiet)
+    options = _guard(
+        _options, reference, bsa, mass, rwt, es_pressure, stress_constant, units, sheet, columns
+    )
+    result = _guard(
+        analyse_file,
+        studies,
+        out,
+        options,
+        in_place=in_place,
+        escape_formulas=escape_formulas,
+        quiet=quiet,
+    )
     counts = result.analysis.methods["counts"]
     if not quiet:
         typer.echo(
@@ -180,11 +216,21 @@ def analyse(
 
 @app.command()
 def track(
-    studies: Path = typer.Argument(..., help="Study list with patient_id and study_date, several studies per patient."),
-    out: Path = typer.Option(..., "--out", "-o", help="Output .xlsx (patients, visits, transitions), .csv or .parquet."),
+    studies: Path = typer.Argument(
+        ..., help="Study list with patient_id and study_date, several studies per patient."
+    ),
+    out: Path = typer.Option(
+        ..., "--out", "-o", help="Output .xlsx (patients, visits, transitions), .csv or .parquet."
+    ),
     reference: str = REF,
-    within_sd: float = typer.Option(None, "--within-sd", help="Your lab's within-subject SD of LV mass [g] (LSC = 1.96*sqrt(2)*SD)."),
-    same_day: str = typer.Option("mean", "--same-day", help="Studies of one patient on one day: 'mean' or 'last'."),
+    within_sd: float = typer.Option(
+        None,
+        "--within-sd",
+        help="Your lab's within-subject SD of LV mass [g] (LSC = 1.96*sqrt(2)*SD).",
+    ),
+    same_day: str = typer.Option(
+        "mean", "--same-day", help="Studies of one patient on one day: 'mean' or 'last'."
+    ),
     units: Units = UNITS,
     sheet: str = SHEET,
     columns: Path = COLUMNS,
@@ -193,9 +239,21 @@ def track(
     """Per-patient change against reproducibility, slopes and geometry transitions."""
     from .jobs import track_file
 
-    options = _guard(_options, reference, Bsa.dubois, Mass.ase_corrected, Rwt.posterior, EsPressure.cuff_sbp,
-                     StressConstant.published, units, sheet, columns)
-    result = _guard(track_file, studies, out, options, within_subject_sd_g=within_sd, same_day=same_day)
+    options = _guard(
+        _options,
+        reference,
+        Bsa.dubois,
+        Mass.ase_corrected,
+        Rwt.posterior,
+        EsPressure.cuff_sbp,
+        StressConstant.published,
+        units,
+        sheet,
+        columns,
+    )
+    result = _guard(
+        track_file, studies, out, options, within_subject_sd_g=within_sd, same_day=same_day
+    )
     if not quiet:
         for line in result.notes:
             typer.echo(line)
@@ -208,7 +266,9 @@ def report(
     studies: Path = typer.Argument(..., help="Study list (one or many studies per patient)."),
     out: Path = typer.Option(..., "--out", "-o", help="Output .html (one self-contained file)."),
     reference: str = REF,
-    figures: Path = typer.Option(None, "--figures", help="Also write each figure as PNG and SVG here."),
+    figures: Path = typer.Option(
+        None, "--figures", help="Also write each figure as PNG and SVG here."
+    ),
     units: Units = UNITS,
     sheet: str = SHEET,
     columns: Path = COLUMNS,
@@ -217,8 +277,18 @@ def report(
     """Pictures and per-patient pages in one HTML file that works offline."""
     from .jobs import report_file
 
-    options = _guard(_options, reference, Bsa.dubois, Mass.ase_corrected, Rwt.posterior, EsPressure.cuff_sbp,
-                     StressConstant.published, units, sheet, columns)
+    options = _guard(
+        _options,
+        reference,
+        Bsa.dubois,
+        Mass.ase_corrected,
+        Rwt.posterior,
+        EsPressure.cuff_sbp,
+        StressConstant.published,
+        units,
+        sheet,
+        columns,
+    )
     path = _guard(report_file, studies, out, options, figures_dir=figures)
     if not quiet:
         typer.echo(f"wrote {path}")
@@ -234,7 +304,9 @@ def template(out: Path = typer.Option(..., "--out", "-o", help="Output .xlsx")):
 
 
 @app.command()
-def references(name: str = typer.Argument(None, help="A set name or set CSV; omit to list the bundled sets.")):
+def references(
+    name: str = typer.Argument(None, help="A set name or set CSV; omit to list the bundled sets."),
+):
     """The cut-offs in force, each with its source and whether it was checked."""
     from .references import list_sets, load_set
 
@@ -250,7 +322,9 @@ def references(name: str = typer.Argument(None, help="A set name or set CSV; omi
         sex = r.sex if isinstance(r.sex, str) else "both"
         flag = "" if r.verified in ("published", "lab") else f"  [{r.verified}]"
         if r.kind == "cutoff":
-            typer.echo(f"  {r.measure:<18} {sex:<4} {r.grade:<13} {r.comparison:>2} {r.value:g} {r.unit if isinstance(r.unit, str) else ''}{flag}")
+            typer.echo(
+                f"  {r.measure:<18} {sex:<4} {r.grade:<13} {r.comparison:>2} {r.value:g} {r.unit if isinstance(r.unit, str) else ''}{flag}"
+            )
         else:
             typer.echo(f"  {r.measure}.{r.grade} = {r.value:g}{flag}")
     typer.echo("\nSources:")
@@ -262,10 +336,20 @@ def references(name: str = typer.Argument(None, help="A set name or set CSV; omi
 @app.command()
 def calibrate(
     normals: Path = typer.Argument(..., help="Study list of your lab's healthy subjects."),
-    out: Path = typer.Option(..., "--out", "-o", help="Output reference set .csv (use it with --reference)."),
-    base: str = typer.Option("ase_eacvi_2015", "--base", help="Set whose rows you do not fit are kept from."),
-    min_per_sex: int = typer.Option(120, "--min-per-sex", help="Subjects needed per sex (CLSI-style nonparametric limit: 120)."),
-    allow_small: bool = typer.Option(False, "--allow-small", help="Fit from 40 or more per sex, marking the rows as small-sample."),
+    out: Path = typer.Option(
+        ..., "--out", "-o", help="Output reference set .csv (use it with --reference)."
+    ),
+    base: str = typer.Option(
+        "ase_eacvi_2015", "--base", help="Set whose rows you do not fit are kept from."
+    ),
+    min_per_sex: int = typer.Option(
+        120, "--min-per-sex", help="Subjects needed per sex (CLSI-style nonparametric limit: 120)."
+    ),
+    allow_small: bool = typer.Option(
+        False,
+        "--allow-small",
+        help="Fit from 40 or more per sex, marking the rows as small-sample.",
+    ),
     units: Units = UNITS,
     sheet: str = SHEET,
     columns: Path = COLUMNS,
@@ -273,9 +357,21 @@ def calibrate(
     """Your lab's own reference limits and stress-shortening line from its healthy subjects."""
     from .jobs import calibrate_file
 
-    options = _guard(_options, base, Bsa.dubois, Mass.ase_corrected, Rwt.posterior, EsPressure.cuff_sbp,
-                     StressConstant.published, units, sheet, columns)
-    result = _guard(calibrate_file, normals, out, options, min_per_sex=min_per_sex, allow_small=allow_small)
+    options = _guard(
+        _options,
+        base,
+        Bsa.dubois,
+        Mass.ase_corrected,
+        Rwt.posterior,
+        EsPressure.cuff_sbp,
+        StressConstant.published,
+        units,
+        sheet,
+        columns,
+    )
+    result = _guard(
+        calibrate_file, normals, out, options, min_per_sex=min_per_sex, allow_small=allow_small
+    )
     for line in result.notes:
         typer.echo(line)
     for p in result.written:
@@ -283,7 +379,9 @@ def calibrate(
 
 
 @app.command()
-def demo(folder: Path = typer.Argument(Path("wallstress-demo"), help="Where to write the demo outputs.")):
+def demo(
+    folder: Path = typer.Argument(Path("wallstress-demo"), help="Where to write the demo outputs."),
+):
     """The whole job on the bundled, invented sample studies."""
     from .jobs import run_demo
 

@@ -17,7 +17,15 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-FINDING_COLUMNS: tuple[str, ...] = ("row", "column", "field", "value", "severity", "code", "message")
+FINDING_COLUMNS: tuple[str, ...] = (
+    "row",
+    "column",
+    "field",
+    "value",
+    "severity",
+    "code",
+    "message",
+)
 SEVERITIES: tuple[str, ...] = ("error", "warning", "note")
 
 

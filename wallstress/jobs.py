@@ -33,7 +33,9 @@ def read_columns_map(path: str | Path | None) -> dict:
         return {}
     p = Path(path)
     if not p.is_file():
-        raise InputError(f"{p}: column map not found; give a CSV with columns header,field or a JSON object")
+        raise InputError(
+            f"{p}: column map not found; give a CSV with columns header,field or a JSON object"
+        )
     try:
         if p.suffix.lower() == ".json":
             data = json.loads(p.read_text(encoding="utf-8-sig"))
@@ -42,11 +44,15 @@ def read_columns_map(path: str | Path | None) -> dict:
             return {str(k): str(v) for k, v in data.items()}
         t = pd.read_csv(p, dtype=str, encoding="utf-8-sig")
     except Exception as exc:
-        raise InputError(f"{p}: column map cannot be read ({exc}); use CSV columns header,field or a JSON object") from exc
+        raise InputError(
+            f"{p}: column map cannot be read ({exc}); use CSV columns header,field or a JSON object"
+        ) from exc
     cols = [c.strip().lower() for c in t.columns]
     if cols[:2] != ["header", "field"]:
-        raise InputError(f"{p}: column map needs the columns 'header' and 'field' (found {list(t.columns)})")
-    return dict(zip(t.iloc[:, 0].astype(str), t.iloc[:, 1].astype(str).str.strip()))
+        raise InputError(
+            f"{p}: column map needs the columns 'header' and 'field' (found {list(t.columns)})"
+        )
+    return dict(zip(t.iloc[:, 0].astype(str), t.iloc[:, 1].astype(str).str.strip(), strict=True))
 
 
 def _source_methods(analysis: Analysis, study) -> None:
@@ -75,16 +81,20 @@ def analyse_file(
     if in_place:
         out_path = path
     elif out_path.resolve() == path.resolve():
-        raise OutputError(f"{out_path}: this would overwrite your input; choose another -o or pass --in-place")
+        raise OutputError(
+            f"{out_path}: this would overwrite your input; choose another -o or pass --in-place"
+        )
     from .writers import write_results
 
     with Progress(4, enabled=None if not quiet else False) as bar:
-        study = read_studies(path, sheet=options.sheet)
+        study = read_studies(path, sheet=options.sheet, columns=options.columns)
         bar.step(f"read {len(study.table)} rows")
         analysis = analyse_with_findings(study.table, options, prior_findings=study.findings)
         _source_methods(analysis, study)
         bar.step("measures computed")
-        written = write_results(analysis, out_path, study, in_place=in_place, escape_formulas=escape_formulas)
+        written = write_results(
+            analysis, out_path, study, in_place=in_place, escape_formulas=escape_formulas
+        )
         bar.step("written")
     notes = list(getattr(written, "notes", []) or [])
     paths = list(getattr(written, "paths", written))
@@ -105,7 +115,7 @@ def with_options(options: Options, **changes) -> Options:
 
 
 def _read_and_analyse(path, options: Options):
-    study = read_studies(Path(path), sheet=options.sheet)
+    study = read_studies(Path(path), sheet=options.sheet, columns=options.columns)
     analysis = analyse_with_findings(study.table, options, prior_findings=study.findings)
     _source_methods(analysis, study)
     return study, analysis
@@ -168,8 +178,14 @@ def calibrate_file(
 
     options = options or Options()
     _, analysis = _read_and_analyse(path, options)
-    cal = calibrate(analysis, base_set=options.reference, lab_name=Path(path).stem, min_per_sex=min_per_sex,
-                    allow_small=allow_small, source_file=Path(path).name)
+    cal = calibrate(
+        analysis,
+        base_set=options.reference,
+        lab_name=Path(path).stem,
+        min_per_sex=min_per_sex,
+        allow_small=allow_small,
+        source_file=Path(path).name,
+    )
     written = write_set(cal, Path(out))
     return JobResult(analysis, [written], list(cal.notes))
 
@@ -191,32 +207,50 @@ def run_demo(folder: str | Path = "wallstress-demo") -> JobResult:
     samples = sample_dir()
     notes: list[str] = []
     written: list[Path] = []
-    lab = analyse_file(samples / "fernhill_echo_lab.xlsx", folder / "fernhill_echo_lab.wallstress.xlsx")
+    lab = analyse_file(
+        samples / "fernhill_echo_lab.xlsx", folder / "fernhill_echo_lab.wallstress.xlsx"
+    )
     c = lab.analysis.methods["counts"]
-    notes.append(f"echo lab study list: {c['rows']} studies, {c['rows_flagged']} flagged, "
-                 f"{c['rows_with_errors']} with errors -> {lab.written[0].name}")
+    notes.append(
+        f"echo lab study list: {c['rows']} studies, {c['rows_flagged']} flagged, "
+        f"{c['rows_with_errors']} with errors -> {lab.written[0].name}"
+    )
     written += lab.written
     fu = track_file(samples / "fernhill_followup.xlsx", folder / "fernhill_followup.tracking.xlsx")
     notes.append(f"follow-up clinic: {fu.notes[0]} -> {fu.written[0].name}")
     notes += fu.notes[1:]
     written += fu.written
-    rep = report_file(samples / "fernhill_followup.xlsx", folder / "fernhill_followup.report.html",
-                      figures_dir=folder / "figures")
+    rep = report_file(
+        samples / "fernhill_followup.xlsx",
+        folder / "fernhill_followup.report.html",
+        figures_dir=folder / "figures",
+    )
     notes.append(f"report: {rep.name} (figures in figures/)")
     written.append(rep)
-    lab_rep = report_file(samples / "fernhill_echo_lab.xlsx", folder / "fernhill_echo_lab.report.html")
+    lab_rep = report_file(
+        samples / "fernhill_echo_lab.xlsx", folder / "fernhill_echo_lab.report.html"
+    )
     notes.append(f"report: {lab_rep.name}")
     try:
         from .calibrate import calibrate, write_set
 
         _, normals = _read_and_analyse(samples / "fernhill_normals.csv", Options())
-        cal = calibrate(normals, lab_name="fernhill_normals", allow_small=True, source_file="fernhill_normals.csv")
+        cal = calibrate(
+            normals,
+            lab_name="fernhill_normals",
+            allow_small=True,
+            source_file="fernhill_normals.csv",
+        )
         p = write_set(cal, folder / "fernhill_own_limits.csv")
-        notes.append(f"lab's own limits from {normals.n_rows} healthy volunteers -> {p.name} "
-                     "(use it with --reference)")
+        notes.append(
+            f"lab's own limits from {normals.n_rows} healthy volunteers -> {p.name} "
+            "(use it with --reference)"
+        )
         written.append(p)
     except InputError as exc:
         notes.append(f"calibrate: {exc}")
-    notes.append("These are invented data. wallstress supports, never replaces, a qualified clinician's "
-                 "judgement and the local lab's protocols and reference values.")
+    notes.append(
+        "These are invented data. wallstress supports, never replaces, a qualified clinician's "
+        "judgement and the local lab's protocols and reference values."
+    )
     return JobResult(lab.analysis, written, notes)

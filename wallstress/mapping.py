@@ -415,7 +415,9 @@ def _dates_from_text(s: pd.Series, probs: dict) -> tuple[pd.Series, dict]:
     codes, uniq = _factorize(_as_text(s))
     out_u, probs_u = _dates_from_unique(uniq, {k: np.zeros(len(uniq), bool) for k in probs})
     out = pd.Series(_expand(out_u.to_numpy(dtype="datetime64[ns]"), codes, np.datetime64("NaT")))
-    return out.astype("datetime64[ns]"), {k: _expand(v, codes, False).astype(bool) for k, v in probs_u.items()}
+    return out.astype("datetime64[ns]"), {
+        k: _expand(v, codes, False).astype(bool) for k, v in probs_u.items()
+    }
 
 
 def _dates_from_unique(t: pd.Series, probs: dict) -> tuple[pd.Series, dict]:

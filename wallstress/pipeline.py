@@ -9,7 +9,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from . import __version__, classify, findings as fnd
+from . import __version__, classify
+from . import findings as fnd
 from .formulas import body_size, function, mass, stress
 from .mapping import map_columns
 from .methods import build_methods

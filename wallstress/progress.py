@@ -11,7 +11,7 @@ class Progress:
 
     def __init__(self, total: int, *, enabled: bool | None = None, stream=None):
         self.stream = stream or sys.stderr
-        self.enabled = (self.stream.isatty() if enabled is None else enabled)
+        self.enabled = self.stream.isatty() if enabled is None else enabled
         self.total = max(int(total), 1)
         self.done = 0
         self.t0 = time.perf_counter()

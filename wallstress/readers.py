@@ -475,10 +475,15 @@ def _read_csv(p: Path, data: bytes, max_rows, columns) -> StudyTable:
 
 
 def _blank_to_nan(grid: pd.DataFrame, strip: bool = True) -> pd.DataFrame:
-    """Empty (or, with ``strip``, whitespace-only) text cells -> NaN; object dtype throughout."""
+    """Empty (or, with ``strip``, whitespace-only) text cells -> NaN."""
     out = {}
     for c in grid.columns:
-        s = grid[c].astype(object)
+        s = grid[c]
+        if strip and pd.api.types.is_string_dtype(s.dtype) and s.dtype != object:
+            blank = s.isna().to_numpy() | s.str.strip().eq("").fillna(True).to_numpy(dtype=bool)
+            out[c] = s.where(~blank)  # keeps the vectorised ``str`` dtype
+            continue
+        s = s.astype(object)
         if strip:
             blank = s.isna().to_numpy() | s.astype("str").str.strip().eq("").to_numpy()
         else:
@@ -504,7 +509,7 @@ def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataF
             continue
         tt = t[nonempty]
         if tt.str.fullmatch(_PLAIN_NUM).all():
-            out[j] = pd.to_numeric(t.where(nonempty), errors="coerce").astype("float64")
+            out[j] = t.where(nonempty).astype("float64")
         elif (
             allow_comma
             and tt.str.fullmatch(_COMMA_NUM).all()
@@ -678,14 +683,20 @@ def _cell_findings(table: pd.DataFrame, error_cells=None) -> list:
         s = table.iloc[:, j]
         if s.dtype != object and not pd.api.types.is_string_dtype(s.dtype):
             continue
-        try:
-            t = s.str.strip()  # NaN for cells that are not text
-        except AttributeError:
-            continue
-        is_str = t.notna().to_numpy()
-        if not is_str.any():
-            continue
-        err = t.str.upper().isin(SPREADSHEET_ERRORS).to_numpy() & is_str
+        if s.dtype == object:
+            arr = s.to_numpy(dtype=object)
+            is_str = np.fromiter((type(x) is str for x in arr), dtype=bool, count=len(arr))
+            if not is_str.any():
+                continue
+            t = s.where(is_str).astype("str")
+        else:
+            t = s
+            is_str = t.notna().to_numpy()
+        t = t.str.strip()
+        err = np.zeros(len(s), dtype=bool)
+        hashes = t.str.startswith("#").fillna(False).to_numpy(dtype=bool)
+        if hashes.any():
+            err = t.str.upper().isin(SPREADSHEET_ERRORS).to_numpy(dtype=bool) & is_str
         if err.any():
             rows = np.flatnonzero(err)
             parts.append(
@@ -699,7 +710,7 @@ def _cell_findings(table: pd.DataFrame, error_cells=None) -> list:
                 )
             )
             table.iloc[rows, j] = np.nan
-        long = (s.str.len().fillna(0).to_numpy() > MAX_CELL_CHARS) & is_str
+        long = (t.str.len().fillna(0).to_numpy() > MAX_CELL_CHARS) & is_str
         if long.any():
             rows = np.flatnonzero(long)
             parts.append(

@@ -27,7 +27,18 @@ import pandas as pd
 
 from .errors import ReferenceSetError
 
-SET_COLUMNS = ("kind", "measure", "sex", "grade", "comparison", "value", "unit", "source", "verified", "note")
+SET_COLUMNS = (
+    "kind",
+    "measure",
+    "sex",
+    "grade",
+    "comparison",
+    "value",
+    "unit",
+    "source",
+    "verified",
+    "note",
+)
 MODEL_COLUMNS = ("model", "parameter", "sex", "value", "unit", "source", "verified", "note")
 UPWARD_GRADES = ("increased", "mild", "moderate", "severe")
 DOWNWARD_GRADES = ("below_normal",)
@@ -98,7 +109,9 @@ def model_coefficients(model: str) -> dict[str, Coefficient]:
         known = ", ".join(sorted(t["model"].unique()))
         raise ReferenceSetError(f"unknown model {model!r}; known models: {known}")
     return {
-        r.parameter: Coefficient(float(r.value), str(r.unit), str(r.source), str(r.verified), _text(r.note))
+        r.parameter: Coefficient(
+            float(r.value), str(r.unit), str(r.source), str(r.verified), _text(r.note)
+        )
         for r in rows.itertuples()
     }
 
@@ -128,7 +141,9 @@ class ReferenceSet:
         cut = rows[rows["kind"] == "cutoff"]
         self._cutoffs: dict[tuple[str, str], list[Cutoff]] = {}
         for r in cut.itertuples():
-            c = Cutoff(float(r.value), str(r.comparison), str(r.source), str(r.verified), str(r.grade))
+            c = Cutoff(
+                float(r.value), str(r.comparison), str(r.source), str(r.verified), str(r.grade)
+            )
             for sex in ("F", "M") if _text(r.sex) in ("", "both", "all") else (str(r.sex),):
                 self._cutoffs.setdefault((r.measure, sex), []).append(c)
 
@@ -140,7 +155,9 @@ class ReferenceSet:
 
     def grades(self, measure: str, sex: str) -> list[Cutoff]:
         """All thresholds of one measure for one sex, upward grades in ascending order."""
-        return sorted(self._cutoffs.get((measure, sex), []), key=lambda c: (c.grade in UPWARD_GRADES, c.value))
+        return sorted(
+            self._cutoffs.get((measure, sex), []), key=lambda c: (c.grade in UPWARD_GRADES, c.value)
+        )
 
     def cutoff(self, measure: str, sex: str) -> Cutoff | None:
         """The abnormal (lowest upward) threshold of a measure for one sex, or None."""
@@ -152,9 +169,13 @@ class ReferenceSet:
         out = model_coefficients(model) if model in set(_models()["model"]) else {}
         own = self.rows[(self.rows["kind"] == "coefficient") & (self.rows["measure"] == model)]
         for r in own.itertuples():
-            out[str(r.grade)] = Coefficient(float(r.value), _text(r.unit), _text(r.source), _text(r.verified), _text(r.note))
+            out[str(r.grade)] = Coefficient(
+                float(r.value), _text(r.unit), _text(r.source), _text(r.verified), _text(r.note)
+            )
         if not out:
-            raise ReferenceSetError(f"no coefficients for model {model!r} in set {self.name!r} or the defaults")
+            raise ReferenceSetError(
+                f"no coefficients for model {model!r} in set {self.name!r} or the defaults"
+            )
         return out
 
     def unverified(self) -> pd.DataFrame:
@@ -165,14 +186,24 @@ class ReferenceSet:
     def as_records(self) -> list[dict]:
         """The set's rows as plain dicts (for the methods record)."""
         keep = self.rows[self.rows["kind"] != "setting"]
-        return [{k: _text(v) if not isinstance(v, float) else v for k, v in rec.items()} for rec in keep.to_dict("records")]
+        return [
+            {k: _text(v) if not isinstance(v, float) else v for k, v in rec.items()}
+            for rec in keep.to_dict("records")
+        ]
 
 
 def _read_set_csv(source, label: str) -> pd.DataFrame:
     try:
-        rows = pd.read_csv(source, dtype={"sex": str, "grade": str, "note": str}, keep_default_na=False, na_values=[""])
+        rows = pd.read_csv(
+            source,
+            dtype={"sex": str, "grade": str, "note": str},
+            keep_default_na=False,
+            na_values=[""],
+        )
     except Exception as exc:  # a malformed lab file
-        raise ReferenceSetError(f"reference set {label}: cannot be read as CSV ({exc}); see 'wallstress references' for the format") from exc
+        raise ReferenceSetError(
+            f"reference set {label}: cannot be read as CSV ({exc}); see 'wallstress references' for the format"
+        ) from exc
     missing = [c for c in SET_COLUMNS if c not in rows.columns]
     if missing:
         raise ReferenceSetError(
@@ -185,7 +216,9 @@ def _read_set_csv(source, label: str) -> pd.DataFrame:
 def _check_rows(rows: pd.DataFrame, label: str) -> None:
     bad_kind = set(rows["kind"]) - {"cutoff", "setting", "coefficient"}
     if bad_kind:
-        raise ReferenceSetError(f"reference set {label}: unknown kind {sorted(bad_kind)}; use cutoff, setting or coefficient")
+        raise ReferenceSetError(
+            f"reference set {label}: unknown kind {sorted(bad_kind)}; use cutoff, setting or coefficient"
+        )
     cut = rows[rows["kind"] == "cutoff"]
     bad = cut[~cut["comparison"].isin(COMPARISONS)]
     if len(bad):
@@ -194,23 +227,31 @@ def _check_rows(rows: pd.DataFrame, label: str) -> None:
         )
     grades = set(cut["grade"]) - set(UPWARD_GRADES) - set(DOWNWARD_GRADES)
     if grades:
-        raise ReferenceSetError(f"reference set {label}: unknown grade {sorted(grades)}; use {UPWARD_GRADES + DOWNWARD_GRADES}")
+        raise ReferenceSetError(
+            f"reference set {label}: unknown grade {sorted(grades)}; use {UPWARD_GRADES + DOWNWARD_GRADES}"
+        )
     values = pd.to_numeric(rows.loc[rows["kind"] != "setting", "value"], errors="coerce")
     if values.isna().any():
-        raise ReferenceSetError(f"reference set {label}: a cutoff or coefficient row has no numeric value")
+        raise ReferenceSetError(
+            f"reference set {label}: a cutoff or coefficient row has no numeric value"
+        )
     unknown_v = set(rows.loc[rows["kind"] != "setting", "verified"]) - set(VERIFIED)
     if unknown_v:
-        raise ReferenceSetError(f"reference set {label}: verified must be one of {VERIFIED}, got {sorted(unknown_v)}")
+        raise ReferenceSetError(
+            f"reference set {label}: verified must be one of {VERIFIED}, got {sorted(unknown_v)}"
+        )
     sexes = set(cut["sex"].fillna("")) - {"F", "M", "", "both", "all"}
     if sexes:
-        raise ReferenceSetError(f"reference set {label}: sex must be F, M or empty (both), got {sorted(sexes)}")
+        raise ReferenceSetError(
+            f"reference set {label}: sex must be F, M or empty (both), got {sorted(sexes)}"
+        )
 
 
 @functools.lru_cache(maxsize=32)
 def _load_bundled(name: str) -> ReferenceSet:
     with _tables().joinpath(f"{name}.csv").open("r", encoding="utf-8") as fh:
         rows = _read_set_csv(fh, name)
-    return ReferenceSet(name, rows, f"reference_tables/{name}.csv")
+    return ReferenceSet(name, rows, f"bundled: reference_tables/{name}.csv")
 
 
 def load_set(name_or_path: str | Path = DEFAULT_SET) -> ReferenceSet:

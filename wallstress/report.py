@@ -362,7 +362,10 @@ def _resolve_reference_set(analysis, reference_set):
     if name is None:
         ref = methods.get("reference_set")
         if isinstance(ref, Mapping):
-            name = ref.get("path") or ref.get("name")
+            from .references import list_sets
+
+            bundled = ref.get("name") in list_sets()
+            name = ref.get("name") if bundled else (ref.get("path") or ref.get("name"))
         elif isinstance(ref, str):
             name = ref
     if name is None:
@@ -932,7 +935,8 @@ def render_report(
         from . import __version__ as version
     except ImportError:  # pragma: no cover
         version = "?"
-    made = _dt.datetime.now().strftime("%Y-%m-%d %H:%M")
+    run_utc = (getattr(analysis, "methods", None) or {}).get("run_utc")
+    made = str(run_utc) if run_utc else _dt.datetime.now().strftime("%Y-%m-%d %H:%M")
     nav = [("summary", "Summary"), ("counts", "Geometry by sex"), ("flagged", "Flagged rows")]
     nav.append(("figures", "Figures"))
     if tracking is not None:
