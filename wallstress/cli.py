@@ -102,7 +102,15 @@ def _guard(fn, *args, **kwargs):
 
 
 def _options(
-    reference, bsa, mass, rwt, es_pressure, stress_constant, units, sheet, columns
+    reference: str,
+    units: Units,
+    sheet: str | None,
+    columns: Path | None,
+    bsa: Bsa = Bsa.dubois,
+    mass: Mass = Mass.ase_corrected,
+    rwt: Rwt = Rwt.posterior,
+    es_pressure: EsPressure = EsPressure.cuff_sbp,
+    stress_constant: StressConstant = StressConstant.published,
 ) -> Options:
     from .jobs import read_columns_map
 
@@ -189,7 +197,7 @@ def analyse(
     from .jobs import analyse_file
 
     options = _guard(
-        _options, reference, bsa, mass, rwt, es_pressure, stress_constant, units, sheet, columns
+        _options, reference, units, sheet, columns, bsa, mass, rwt, es_pressure, stress_constant
     )
     result = _guard(
         analyse_file,
@@ -239,18 +247,7 @@ def track(
     """Per-patient change against reproducibility, slopes and geometry transitions."""
     from .jobs import track_file
 
-    options = _guard(
-        _options,
-        reference,
-        Bsa.dubois,
-        Mass.ase_corrected,
-        Rwt.posterior,
-        EsPressure.cuff_sbp,
-        StressConstant.published,
-        units,
-        sheet,
-        columns,
-    )
+    options = _guard(_options, reference, units, sheet, columns)
     result = _guard(
         track_file, studies, out, options, within_subject_sd_g=within_sd, same_day=same_day
     )
@@ -277,18 +274,7 @@ def report(
     """Pictures and per-patient pages in one HTML file that works offline."""
     from .jobs import report_file
 
-    options = _guard(
-        _options,
-        reference,
-        Bsa.dubois,
-        Mass.ase_corrected,
-        Rwt.posterior,
-        EsPressure.cuff_sbp,
-        StressConstant.published,
-        units,
-        sheet,
-        columns,
-    )
+    options = _guard(_options, reference, units, sheet, columns)
     path = _guard(report_file, studies, out, options, figures_dir=figures)
     if not quiet:
         typer.echo(f"wrote {path}")
@@ -357,18 +343,7 @@ def calibrate(
     """Your lab's own reference limits and stress-shortening line from its healthy subjects."""
     from .jobs import calibrate_file
 
-    options = _guard(
-        _options,
-        base,
-        Bsa.dubois,
-        Mass.ase_corrected,
-        Rwt.posterior,
-        EsPressure.cuff_sbp,
-        StressConstant.published,
-        units,
-        sheet,
-        columns,
-    )
+    options = _guard(_options, base, units, sheet, columns)
     result = _guard(
         calibrate_file, normals, out, options, min_per_sex=min_per_sex, allow_small=allow_small
     )

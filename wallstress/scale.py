@@ -162,10 +162,10 @@ def analyse_chunked(
 
     digest = safety.sha256_file(src)
     if kind == "csv":
-        source, file_findings, chunks = _csv_chunks(src, chunk_rows)
+        source, file_findings, chunks = _csv_chunks(src, chunk_rows, options.columns)
         total = None
     else:
-        source, file_findings, chunks, total = _parquet_chunks(src, chunk_rows)
+        source, file_findings, chunks, total = _parquet_chunks(src, chunk_rows, options.columns)
     source.sha256 = digest
 
     sink = _Sink(out, findings_out, suffix, source, escape_formulas)
@@ -173,7 +173,7 @@ def analyse_chunked(
     with safety.atomic_files() as batch, contextlib.ExitStack() as stack:
         sink.open(batch, stack)
         done = 0
-        for raw, cells in _at_least_one(chunks, source):
+        for raw, cells in _at_least_one(chunks, source, options.columns):
             result, row_findings = state.analyse(raw, cells, offset=done)
             sink.write(result, row_findings, offset=done)
             done += len(raw)
@@ -264,12 +264,12 @@ def _csv_head(p: Path) -> bytes:
     return data[: data.rfind(b"\n") + 1]
 
 
-def _csv_chunks(p: Path, chunk_rows: int):
+def _csv_chunks(p: Path, chunk_rows: int, columns: dict | None = None):
     head = _csv_head(p)
     with tempfile.TemporaryDirectory(prefix="wallstress-head-") as tmp:
         head_path = Path(tmp) / p.name
         head_path.write_bytes(head)
-        st = readers.read_studies(head_path)
+        st = readers.read_studies(head_path, columns=columns)
     kw = dict(
         sep=st.delimiter,
         header=None,
@@ -348,7 +348,7 @@ def _csv_table(
     return table, fnd.concat(readers._cell_findings(table))
 
 
-def _parquet_chunks(p: Path, chunk_rows: int):
+def _parquet_chunks(p: Path, chunk_rows: int, columns: dict | None = None):
     try:
         import pyarrow.parquet as pq
     except ImportError as exc:  # pragma: no cover - optional dependency
@@ -361,7 +361,7 @@ def _parquet_chunks(p: Path, chunk_rows: int):
         ) from exc
     headers = [str(c) for c in pf.schema_arrow.names]
     need = min(3, len(headers))
-    score = readers.header_score(headers, None)
+    score = readers.header_score(headers, columns)
     if score < need:
         raise InputError(
             f"{p}: no recognisable column names ({score} known, at least {need} needed, e.g. "
@@ -415,7 +415,7 @@ def _parquet_chunks(p: Path, chunk_rows: int):
     return source, fnd.concat(parts), chunks(), int(pf.metadata.num_rows)
 
 
-def _at_least_one(chunks, source):
+def _at_least_one(chunks, source, columns=None):
     """The chunks; one empty chunk when the file has no data rows (so that headers get written)."""
     any_chunk = False
     for item in chunks:
@@ -423,7 +423,7 @@ def _at_least_one(chunks, source):
         yield item
     if not any_chunk:
         if source.format == "csv":
-            st = readers.read_studies(source.path)
+            st = readers.read_studies(source.path, columns=columns)
             yield st.table.iloc[:0], fnd.empty()
         else:
             import pyarrow.parquet as pq

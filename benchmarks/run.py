@@ -1,0 +1,411 @@
+"""Speed and memory of wallstress against hand-written baselines measured in the same run.
+
+A script, not a test: ``python benchmarks/run.py [--quick | --full] [--sizes 10000 100000 ...]``.
+Every number is a ratio against a baseline timed in this same run on the same invented rows (no
+real people), so the results hold on any machine; the absolute times are printed for context only.
+
+1. ``analyse``: ``wallstress.analyse`` (canonical columns in) vs the same formulas written as bare
+   numpy expressions below (BSA DuBois, ASE mass, indexes, RWT, 4-group geometry by np.where,
+   Teichholz, FS, EF, mESS, cESS, midwall FS), the baseline also building its output DataFrame.
+2. CSV end to end: in-process ``wallstress.jobs.analyse_file`` (read, analyse, write results,
+   findings and methods) vs a pandas script: read_csv, the bare numpy measures, to_csv.
+3. xlsx end to end: ``analyse_file`` xlsx -> xlsx vs a bare python-calamine read plus the bare
+   measures plus an openpyxl write-only workbook of the same result table.
+4. Peak RSS of a child process running ``analyse_file`` (CSV) vs the in-memory size of its input
+   and output tables (``DataFrame.memory_usage(deep=True)``); and of ``analyse_chunked``.
+5. Time per row across sizes (linear growth shows as a flat column).
+
+Writes benchmarks/RESULTS.md (machine, versions, table). ``--quick`` finishes in under a minute.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import platform
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+HERE = Path(__file__).resolve().parent
+TARGETS = {"analyse": 1.5, "csv": 1.3, "xlsx": 1.5, "rss": 3.0}
+
+
+# --------------------------------------------------------------------------------------------------
+# invented data
+
+
+def invented_studies(n: int, seed: int = 7) -> pd.DataFrame:
+    """n invented echo studies under canonical names (cm, kg, mmHg); no real people."""
+    rng = np.random.default_rng(seed)
+    sex = np.where(rng.random(n) < 0.5, "F", "M")
+    male = sex == "M"
+    lvidd = rng.normal(np.where(male, 5.0, 4.6), 0.45)
+    ivsd = rng.normal(1.0, 0.15, n)
+    pwd = rng.normal(0.95, 0.13, n)
+    sbp = rng.normal(138, 18, n)
+    return pd.DataFrame(
+        {
+            "study_id": np.arange(n),
+            "sex": sex,
+            "age_years": rng.uniform(25, 85, n).round(0),
+            "height_cm": rng.normal(np.where(male, 176, 163), 7).round(1),
+            "weight_kg": rng.normal(np.where(male, 84, 70), 12).round(1),
+            "sbp_mmhg": sbp.round(0),
+            "dbp_mmhg": (sbp - rng.normal(55, 10, n)).round(0),
+            "hr_bpm": rng.normal(70, 10, n).round(0),
+            "ivsd_cm": ivsd.round(2),
+            "lvidd_cm": lvidd.round(2),
+            "pwd_cm": pwd.round(2),
+            "ivss_cm": (ivsd * rng.normal(1.45, 0.15, n)).round(2),
+            "lvids_cm": (lvidd * rng.normal(0.64, 0.05, n)).round(2),
+            "pws_cm": (pwd * rng.normal(1.55, 0.15, n)).round(2),
+        }
+    )
+
+
+# --------------------------------------------------------------------------------------------------
+# the baseline: bare numpy expressions of the same published formulas
+
+
+def bare_measures(df: pd.DataFrame) -> pd.DataFrame:
+    """The core measures as bare numpy (no validation, findings, grades or methods record)."""
+    h, w = df["height_cm"].to_numpy(float), df["weight_kg"].to_numpy(float)
+    ivsd, lvidd, pwd = (df[c].to_numpy(float) for c in ("ivsd_cm", "lvidd_cm", "pwd_cm"))
+    lvids, pws, sbp = (df[c].to_numpy(float) for c in ("lvids_cm", "pws_cm", "sbp_mmhg"))
+    sex = df["sex"].to_numpy(object)
+    bsa = 0.007184 * w**0.425 * h**0.725  # DuBois 1916
+    lvm = 0.8 * 1.04 * ((ivsd + lvidd + pwd) ** 3 - lvidd**3) + 0.6  # Devereux 1986
+    lvmi = lvm / bsa
+    lvmi_h27 = lvm / (h / 100) ** 2.7
+    rwt = 2 * pwd / lvidd
+    lvh = np.where(sex == "M", lvmi > 115, lvmi > 95)  # Lang 2015
+    conc = rwt > 0.42
+    geometry = np.where(
+        lvh,
+        np.where(conc, "concentric_hypertrophy", "eccentric_hypertrophy"),
+        np.where(conc, "concentric_remodelling", "normal"),
+    )
+    edv = 7 / (2.4 + lvidd) * lvidd**3  # Teichholz 1976
+    esv = 7 / (2.4 + lvids) * lvids**3
+    fs = (lvidd - lvids) / lvidd * 100
+    ef = (edv - esv) / edv * 100
+    mess = 0.334 * sbp * lvids / (pws * (1 + pws / lvids))  # Grossman 1975
+    a = lvids / 2
+    b = a + pws
+    cess = 1.35 * sbp * a**2 / (b**2 - a**2) * (1 + b**2 / (a + pws / 2) ** 2)  # Gaasch
+    hd = (ivsd + pwd) / 2
+    outer = lvidd + hd
+    inner = (outer**3 - lvidd**3 + lvids**3) ** (1 / 3)
+    mfs = (outer - inner) / outer * 100  # Shimizu 1991 two-shell
+    out = pd.DataFrame(
+        {
+            "bsa_m2": bsa,
+            "lv_mass_g": lvm,
+            "lvmi_bsa_g_m2": lvmi,
+            "lvmi_h27_g_m2_7": lvmi_h27,
+            "rwt": rwt,
+            "geometry": geometry,
+            "fs_pct": fs,
+            "edv_teichholz_ml": edv,
+            "esv_teichholz_ml": esv,
+            "ef_teichholz_pct": ef,
+            "mess_kdyn_cm2": mess,
+            "cess_kdyn_cm2": cess,
+            "midwall_fs_pct": mfs,
+        },
+        index=df.index,
+    )
+    return pd.concat([df, out], axis=1)
+
+
+# --------------------------------------------------------------------------------------------------
+# timing helpers
+
+
+def best_of(fn, repeats: int) -> float:
+    times = []
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t0)
+    return min(times)
+
+
+def child_peak_rss_mib(code: str) -> float:
+    """Peak RSS (VmHWM) of a fresh Python child running ``code``, read by the child at its end.
+
+    VmHWM belongs to the new process image, so unlike ``ru_maxrss`` it does not inherit the
+    parent's size through fork.
+    """
+    tail = "\nprint('VmHWM', open('/proc/self/status').read().split('VmHWM:')[1].split()[0])\n"
+    done = subprocess.run([sys.executable, "-c", code + tail], capture_output=True, text=True)
+    if done.returncode != 0:
+        raise RuntimeError(f"child failed ({done.returncode}): {done.stderr[-2000:]}")
+    kib = [ln.split()[1] for ln in done.stdout.splitlines() if ln.startswith("VmHWM")][-1]
+    return int(kib) / 1024
+
+
+def machine() -> dict:
+    cpu = ""
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    ram = ""
+    try:
+        kib = int(Path("/proc/meminfo").read_text().split("MemTotal:")[1].split()[0])
+        ram = f"{kib / 1024**2:.1f} GiB"
+    except (OSError, IndexError, ValueError):
+        pass
+    import numpy
+    import pandas
+
+    try:
+        load = os.getloadavg()[0]
+    except OSError:
+        load = float("nan")
+    return {
+        "nproc": os.cpu_count(),
+        "ram": ram,
+        "cpu": cpu,
+        "python": platform.python_version(),
+        "numpy": numpy.__version__,
+        "pandas": pandas.__version__,
+        "load_1min_at_start": f"{load:.1f}",
+    }
+
+
+# --------------------------------------------------------------------------------------------------
+# benchmarks
+
+
+def bench_analyse(sizes, repeats) -> list[dict]:
+    import wallstress
+
+    rows = []
+    wallstress.analyse(invented_studies(100))  # warm-up: imports, reference tables
+    for n in sizes:
+        df = invented_studies(n)
+        reps = repeats if n <= 10**6 else 1
+        t_tool = best_of(lambda df=df: wallstress.analyse(df), reps)
+        t_base = best_of(lambda df=df: bare_measures(df), reps)
+        rows.append(
+            {
+                "bench": "analyse (in process)",
+                "rows": n,
+                "tool_s": t_tool,
+                "baseline_s": t_base,
+                "target": TARGETS["analyse"] if n == 10**6 else None,
+            }
+        )
+    return rows
+
+
+def bench_csv(n, repeats, tmp: Path) -> dict:
+    from wallstress.jobs import analyse_file
+
+    src = tmp / "studies.csv"
+    invented_studies(n).to_csv(src, index=False)
+
+    def tool():
+        analyse_file(src, tmp / "tool.csv")
+
+    def base():
+        bare_measures(pd.read_csv(src)).to_csv(tmp / "base.csv", index=False)
+
+    return {
+        "bench": "CSV end to end (analyse_file, in process)",
+        "rows": n,
+        "tool_s": best_of(tool, repeats),
+        "baseline_s": best_of(base, repeats),
+        "target": TARGETS["csv"],
+    }
+
+
+def bench_xlsx(n, repeats, tmp: Path) -> dict:
+    from openpyxl import Workbook
+    from python_calamine import CalamineWorkbook
+
+    from wallstress.jobs import analyse_file
+
+    src = tmp / "studies.xlsx"
+    invented_studies(n).to_excel(src, index=False)
+
+    def tool():
+        analyse_file(src, tmp / "tool.xlsx")
+
+    def base():
+        data = CalamineWorkbook.from_path(str(src)).get_sheet_by_index(0).to_python()
+        df = pd.DataFrame(data[1:], columns=data[0])
+        out = bare_measures(df)
+        wb = Workbook(write_only=True)
+        ws = wb.create_sheet("results")
+        ws.append(list(out.columns))
+        for row in out.itertuples(index=False, name=None):
+            ws.append(list(row))
+        wb.save(tmp / "base.xlsx")
+
+    return {
+        "bench": "xlsx end to end (analyse_file, in process)",
+        "rows": n,
+        "tool_s": best_of(tool, repeats),
+        "baseline_s": best_of(base, repeats),
+        "target": TARGETS["xlsx"],
+    }
+
+
+def bench_rss(n, tmp: Path) -> dict:
+    import wallstress
+
+    src = tmp / "rss.csv"
+    df = invented_studies(n)
+    df.to_csv(src, index=False)
+    table = pd.read_csv(src)
+    out = wallstress.analyse(table)
+    tables_mib = (table.memory_usage(deep=True).sum() + out.memory_usage(deep=True).sum()) / 1024**2
+    imports = child_peak_rss_mib("import wallstress.jobs, wallstress.writers, pandas, numpy")
+    code = textwrap.dedent(
+        f"""
+        from wallstress.jobs import analyse_file
+        analyse_file({str(src)!r}, {str(tmp / "rss.out.csv")!r})
+        """
+    )
+    peak = child_peak_rss_mib(code)
+    return {
+        "bench": "peak RSS, analyse_file CSV (child process)",
+        "rows": n,
+        "peak_mib": peak,
+        "imports_mib": imports,
+        "tables_mib": tables_mib,
+        "ratio": peak / tables_mib,
+        "ratio_above_imports": (peak - imports) / tables_mib,
+        "target": TARGETS["rss"],
+    }
+
+
+def bench_chunked(n, chunk_rows, tmp: Path) -> dict:
+    src = tmp / f"registry_{n}.csv"
+    if not src.exists():  # generated once per run, in pieces (bounded memory here too)
+        step = 10**6
+        for start in range(0, n, step):
+            part = invented_studies(min(step, n - start), seed=start + 1)
+            part["study_id"] = np.arange(start, start + len(part))
+            part.to_csv(src, index=False, header=start == 0, mode="a")
+    code = textwrap.dedent(
+        f"""
+        from wallstress.scale import analyse_chunked
+        analyse_chunked({str(src)!r}, {str(tmp / "registry.out.csv")!r}, chunk_rows={chunk_rows})
+        """
+    )
+    t0 = time.perf_counter()
+    peak = child_peak_rss_mib(code)
+    elapsed = time.perf_counter() - t0
+    return {
+        "bench": f"peak RSS, analyse_chunked CSV, chunk_rows={chunk_rows} (child)",
+        "rows": n,
+        "peak_mib": peak,
+        "file_mib": src.stat().st_size / 1024**2,
+        "elapsed_s": elapsed,
+    }
+
+
+# --------------------------------------------------------------------------------------------------
+# report
+
+
+def render(results: list[dict], info: dict, argv: list[str]) -> str:
+    lines = [
+        "# wallstress benchmarks",
+        "",
+        f"Command: `python benchmarks/run.py {' '.join(argv)}`",
+        "",
+        "Machine: " + ", ".join(f"{k} {v}" for k, v in info.items()),
+        "",
+        "Ratios are against a baseline timed in the same run on the same invented rows (best of "
+        "the repeats). Absolute times are for context only: this machine is shared and its load "
+        "varies.",
+        "",
+        "| benchmark | rows | wallstress [s] | baseline [s] | ratio | target | per row [us] |",
+        "|---|---:|---:|---:|---:|---:|---:|",
+    ]
+    for r in results:
+        if "tool_s" in r:
+            ratio = r["tool_s"] / r["baseline_s"]
+            target = f"<= {r['target']:g}" if r.get("target") else ""
+            ok = "" if not r.get("target") else (" (met)" if ratio <= r["target"] else " (NOT met)")
+            lines.append(
+                f"| {r['bench']} | {r['rows']:,} | {r['tool_s']:.3f} | {r['baseline_s']:.3f} | "
+                f"{ratio:.2f}{ok} | {target} | {1e6 * r['tool_s'] / r['rows']:.2f} |"
+            )
+    lines += ["", "| memory | rows | peak RSS [MiB] | detail |", "|---|---:|---:|---|"]
+    for r in results:
+        if "tables_mib" in r:
+            ok = "met" if r["ratio"] <= r["target"] else "NOT met"
+            lines.append(
+                f"| {r['bench']} | {r['rows']:,} | {r['peak_mib']:.0f} | input+output tables "
+                f"{r['tables_mib']:.0f} MiB; ratio {r['ratio']:.2f} (target <= {r['target']:g}, "
+                f"{ok}); imports alone {r['imports_mib']:.0f} MiB, ratio above imports "
+                f"{r['ratio_above_imports']:.2f} |"
+            )
+        elif "file_mib" in r:
+            lines.append(
+                f"| {r['bench']} | {r['rows']:,} | {r['peak_mib']:.0f} | CSV file "
+                f"{r['file_mib']:.0f} MiB; {r['elapsed_s']:.0f} s |"
+            )
+    return "\n".join(lines) + "\n"
+
+
+def main(argv: list[str] | None = None) -> int:
+    argv = sys.argv[1:] if argv is None else argv
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="small sizes, one repeat (< 1 minute)")
+    ap.add_argument(
+        "--full", action="store_true", help="add 10^7 rows and the 10^7-row chunked CSV"
+    )
+    ap.add_argument("--sizes", type=int, nargs="+", help="row counts for the analyse benchmark")
+    ap.add_argument("--repeats", type=int, default=None)
+    ap.add_argument("--out", type=Path, default=HERE / "RESULTS.md")
+    args = ap.parse_args(argv)
+    quick = args.quick
+    repeats = args.repeats or (1 if quick else 3)
+    sizes = args.sizes or ([10**4, 10**5] if quick else [10**4, 10**5, 10**6])
+    if args.full and not args.sizes:
+        sizes = [*sizes, 10**7]
+    info = machine()
+    results: list[dict] = []
+    with tempfile.TemporaryDirectory(prefix="wallstress-bench-") as d:
+        tmp = Path(d)
+        steps = [
+            lambda: results.extend(bench_analyse(sizes, repeats)),
+            lambda: results.append(bench_csv(3 * 10**4 if quick else 3 * 10**5, repeats, tmp)),
+            lambda: results.append(bench_xlsx(5 * 10**3 if quick else 10**5, 1, tmp)),
+            lambda: results.append(bench_rss(3 * 10**4 if quick else 10**6, tmp)),
+            lambda: results.append(
+                bench_chunked(10**5 if quick else 10**6, 2 * 10**4 if quick else 2 * 10**5, tmp)
+            ),
+        ]
+        if args.full:
+            steps.append(lambda: results.append(bench_chunked(10**7, 2 * 10**5, tmp)))
+        for step in steps:
+            step()
+            print(render(results[-1:], {}, argv).split("\n", 8)[-1], end="", flush=True)
+    text = render(results, info, argv)
+    print()
+    print(text)
+    args.out.write_text(text, encoding="utf-8")
+    print(f"written {args.out}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
