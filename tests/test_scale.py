@@ -17,7 +17,7 @@ import pytest
 from conftest import canonical_row
 
 import wallstress
-from wallstress import scale
+from wallstress import Options, scale
 from wallstress.errors import InputError, OutputError
 from wallstress.jobs import analyse_file
 
@@ -283,3 +283,16 @@ def test_duplicates_across_chunks_are_a_stated_limit(tmp_path):
     assert "duplicate_study_id" in flags[0] and "duplicate_study_id" in flags[1]
     assert "duplicate_study_id" not in flags[5]
     assert any("duplicate" in x for x in res.methods["chunked"]["limits"])
+
+
+def test_lab_column_map_is_used(tmp_path):
+    """Options.columns (the lab's header -> field map) reaches the chunked reader as it reaches the
+    in-memory one (common practice, no source)."""
+    df = invented_studies(9).rename(columns={"ivsd_cm": "sept", "pwd_cm": "post"})
+    src = _write_input(df, tmp_path / "map.csv")
+    opts = Options(columns={"sept": "ivsd_cm", "post": "pwd_cm"})
+    analyse_file(src, tmp_path / "mem.csv", opts)
+    scale.analyse_chunked(src, tmp_path / "chk.csv", opts, chunk_rows=4)
+    got = pd.read_csv(tmp_path / "chk.csv")
+    pd.testing.assert_frame_equal(got, pd.read_csv(tmp_path / "mem.csv"))
+    assert got["lv_mass_g"].notna().sum() >= 7

@@ -192,9 +192,9 @@ def calibrate_file(
 
 def sample_dir() -> Path:
     """The bundled, invented sample studies (installed with the package)."""
-    from importlib import resources
+    from ._data import data_dir
 
-    folder = Path(str(resources.files("wallstress.sample_studies")))
+    folder = data_dir("sample_studies")
     if not (folder / "fernhill_echo_lab.xlsx").is_file():
         raise InputError(f"the sample studies are missing from {folder}; reinstall wallstress")
     return folder

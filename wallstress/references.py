@@ -20,11 +20,11 @@ from __future__ import annotations
 
 import functools
 from dataclasses import dataclass
-from importlib import resources
 from pathlib import Path
 
 import pandas as pd
 
+from ._data import data_dir
 from .errors import ReferenceSetError
 
 SET_COLUMNS = (
@@ -81,8 +81,8 @@ class Coefficient:
     note: str = ""
 
 
-def _tables():
-    return resources.files("wallstress.reference_tables")
+def _tables() -> Path:
+    return data_dir("reference_tables")
 
 
 def list_sets() -> list[str]:
