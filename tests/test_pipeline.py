@@ -149,3 +149,14 @@ def test_empty_table_gives_empty_result():
 def test_series_index_kept_through_analyse():
     df = pd.DataFrame([canonical_row(), canonical_row()], index=["a", "b"])
     assert list(wallstress.analyse(df).index) == ["a", "b"]
+
+
+def test_inappropriate_mass_is_a_note_above_128_pct():
+    """de Simone G et al. 1996/1998: observed/predicted LV mass above 128 % is inappropriate (rule checked;
+    the prediction's coefficients are from memory, so the finding is informational, severity note)."""
+    df = pd.DataFrame([canonical_row(ivsd_cm=1.6, pwd_cm=1.6), canonical_row()])
+    a = wallstress.analyse_with_findings(df)
+    f = a.findings[a.findings["code"] == "inappropriate_lv_mass"]
+    assert set(f["severity"]) == {"note"}
+    over = a.outputs["lv_mass_appropriateness_pct"] > 128
+    assert set(f["row"]) == set(np.flatnonzero(over.to_numpy()))

@@ -236,7 +236,7 @@ def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataF
     out["lv_mass_appropriateness_pct"] = appr
     limit = coef["inappropriate_above_pct"].value
     with np.errstate(invalid="ignore"):
-        flag(appr > limit, "inappropriate_lv_mass", "warning",
+        flag(appr > limit, "inappropriate_lv_mass", "note",
              f"LV mass is above {limit:g} % of the mass predicted from sex, height^2.7 and stroke work "
              "(coefficients from memory: interpret with care).", "lv_mass_appropriateness_pct")
     used["lv_mass_predicted_g"] = {"coefficients": {k: v.value for k, v in coef.items()},
