@@ -191,6 +191,13 @@ def analyse(
     escape_formulas: bool = typer.Option(
         False, "--escape-formulas", help="In CSV output, prefix formula-like text with a quote."
     ),
+    chunk_rows: int = typer.Option(
+        None,
+        "--chunk-rows",
+        min=1,
+        help="CSV/parquet larger than memory: process this many rows at a time, streaming to "
+        ".csv/.parquet (duplicates are then found within a chunk only).",
+    ),
     quiet: bool = QUIET,
 ):
     """Every measure for every study, with flags and a methods record."""
@@ -199,6 +206,9 @@ def analyse(
     options = _guard(
         _options, reference, units, sheet, columns, bsa, mass, rwt, es_pressure, stress_constant
     )
+    if chunk_rows:
+        _analyse_in_chunks(studies, out, options, chunk_rows, escape_formulas, quiet, strict)
+        return
     result = _guard(
         analyse_file,
         studies,
@@ -208,18 +218,46 @@ def analyse(
         escape_formulas=escape_formulas,
         quiet=quiet,
     )
-    counts = result.analysis.methods["counts"]
+    _summarise(result.analysis.methods["counts"], result.notes, result.written, quiet, strict)
+
+
+def _summarise(counts: dict, notes, written, quiet: bool, strict: bool, where: str = "") -> None:
+    """The end-of-run lines, and exit 3 under --strict when any row has an error."""
     if not quiet:
         typer.echo(
-            f"{counts['rows']} studies: {counts['rows_flagged']} flagged, {counts['rows_with_errors']} with "
-            f"errors (see the findings)."
+            f"{counts['rows']} studies{where}: {counts['rows_flagged']} flagged, "
+            f"{counts['rows_with_errors']} with errors (see the findings)."
         )
-        for note in result.notes:
+        for note in notes:
             typer.echo(f"note: {note}")
-        for p in result.written:
+        for p in written:
             typer.echo(f"wrote {p}")
     if strict and counts["rows_with_errors"]:
         raise typer.Exit(EXIT_STRICT)
+
+
+def _analyse_in_chunks(studies, out, options, chunk_rows, escape_formulas, quiet, strict) -> None:
+    from .scale import analyse_chunked
+
+    def progress(done: int, total: int | None) -> None:
+        if not quiet and sys.stderr.isatty():
+            of = f" of {total}" if total else ""
+            sys.stderr.write(f"\r{done} rows{of} analysed")
+            sys.stderr.flush()
+
+    result = _guard(
+        analyse_chunked,
+        studies,
+        out,
+        options,
+        chunk_rows=chunk_rows,
+        progress=progress,
+        escape_formulas=escape_formulas,
+    )
+    if not quiet and sys.stderr.isatty():
+        sys.stderr.write("\n")
+    where = f" in {result.chunks} chunks"
+    _summarise(result.methods["counts"], result.notes, result.written, quiet, strict, where)
 
 
 @app.command()
