@@ -236,54 +236,6 @@ def _with_extra_part(src, dest, name, data):
     return dest
 
 
-def test_lossy_parts_clean_workbook_with_comment_is_safe(tmp_path):
-    """Legacy comment boxes (VML ObjectType "Note") are carried over by openpyxl."""
-    assert safety.lossy_workbook_parts(_plain_workbook(tmp_path / "a.xlsx")) == []
-
-
-@pytest.mark.parametrize(
-    "part, data, label",
-    [
-        ("xl/vbaProject.bin", b"\x00", "macros"),
-        ("xl/drawings/drawing1.xml", b"<xdr:wsDr/>", "drawings"),
-        ("xl/media/image1.png", b"\x89PNG", "images"),
-        ("xl/pivotTables/pivotTable1.xml", b"<x/>", "pivot"),
-        ("xl/slicers/slicer1.xml", b"<x/>", "slicers"),
-        ("xl/externalLinks/externalLink1.xml", b"<x/>", "external links"),
-        ("xl/threadedComments/threadedComment1.xml", b"<x/>", "threaded comments"),
-        ("xl/metadata.xml", b"<x/>", "dynamic-array"),
-        ("xl/drawings/vmlDrawing9.vml", b'<x:ClientData ObjectType="Button"/>', "legacy shapes"),
-    ],
-)
-def test_lossy_parts_detected(tmp_path, part, data, label):
-    src = _plain_workbook(tmp_path / "a.xlsx")
-    bad = _with_extra_part(src, tmp_path / "b.xlsx", part, data)
-    found = safety.lossy_workbook_parts(bad)
-    assert any(label in f for f in found), found
-
-
-def test_lossy_parts_sheet_extlst(tmp_path):
-    src = _plain_workbook(tmp_path / "a.xlsx", comment=False)
-    dest = tmp_path / "b.xlsx"
-    with zipfile.ZipFile(src) as zin, zipfile.ZipFile(dest, "w") as zout:
-        for item in zin.infolist():
-            data = zin.read(item.filename)
-            if item.filename == "xl/worksheets/sheet1.xml":
-                data = data.replace(
-                    b"</worksheet>", b'<extLst><ext uri="{x}"/></extLst></worksheet>'
-                )
-            zout.writestr(item, data)
-    assert safety.lossy_workbook_parts(dest) == [
-        "extensions (extLst) in sheet xl/worksheets/sheet1.xml"
-    ]
-
-
-def test_lossy_parts_not_a_zip(tmp_path):
-    p = tmp_path / "fake.xlsx"
-    p.write_text("a,b\n1,2\n")
-    assert "unreadable" in safety.lossy_workbook_parts(p)[0]
-
-
 def test_excel_lock_file(tmp_path):
     wb = tmp_path / "list.xlsx"
     shutil.copyfile(_plain_workbook(tmp_path / "a.xlsx"), wb)

@@ -23,7 +23,7 @@ from openpyxl.comments import Comment
 from openpyxl.styles import Font, PatternFill
 from openpyxl.workbook.defined_name import DefinedName
 
-from wallstress import __version__, safety, writers
+from wallstress import __version__, safety, writers, xlsx_splice
 from wallstress import findings as F
 from wallstress.errors import OutputError
 from wallstress.result import Analysis
@@ -208,17 +208,19 @@ def test_csv_failure_midway_keeps_previous_outputs(tmp_path, monkeypatch):
     out = tmp_path / "r.csv"
     write_results(make_analysis(), out)
     before = {p.name: p.read_bytes() for p in tmp_path.iterdir()}
-    real = pd.DataFrame.to_csv
+    from wallstress import flat_out
+
+    real = flat_out.write_csv
     calls = {"n": 0}
 
-    def flaky(self, path, *args, **kwargs):
+    def flaky(frame, path, *args, **kwargs):
         calls["n"] += 1
         if calls["n"] == 2:  # after the results file, in the findings file
             Path(path).write_text("row,col\n0,")
             raise KeyboardInterrupt
-        return real(self, path, *args, **kwargs)
+        return real(frame, path, *args, **kwargs)
 
-    monkeypatch.setattr(pd.DataFrame, "to_csv", flaky)
+    monkeypatch.setattr(flat_out, "write_csv", flaky)
     with pytest.raises(KeyboardInterrupt):
         write_results(make_analysis(), out)
     after = {p.name: p.read_bytes() for p in tmp_path.iterdir()}
@@ -364,11 +366,11 @@ def test_xlsx_serializer_failure_keeps_previous_output(tmp_path, monkeypatch):
     write_results(make_analysis(), out)
     before = out.read_bytes()
 
-    def broken_save(self, filename):
-        Path(filename).write_bytes(b"PK\x03\x04 half a zip")
+    def broken_write(target, *args, **kwargs):
+        Path(target).write_bytes(b"PK\x03\x04 half a zip")
         raise OSError("disk full")
 
-    monkeypatch.setattr(openpyxl.Workbook, "save", broken_save)
+    monkeypatch.setattr(xlsx_splice, "new_workbook", broken_write)
     with pytest.raises(OSError, match="disk full"):
         write_results(make_analysis(), out)
     assert out.read_bytes() == before
@@ -421,13 +423,31 @@ def test_xlsx_copy_sheet_name_taken_gets_number(tmp_path):
 
 
 @pytest.mark.parametrize(
-    "part, data, label",
+    "part, data",
     [
-        ("xl/vbaProject.bin", b"\x00", "macros"),
-        ("xl/drawings/drawing1.xml", b"<xdr:wsDr/>", "drawings"),
-        ("xl/pivotCache/pivotCacheDefinition1.xml", b"<x/>", "pivot"),
+        ("xl/drawings/drawing1.xml", b"<xdr:wsDr/>"),
+        ("xl/pivotCache/pivotCacheDefinition1.xml", b"<x/>"),
+        ("xl/media/image1.png", b"x"),
     ],
 )
+def test_xlsx_copy_keeps_parts_a_spreadsheet_library_would_drop(tmp_path, part, data):
+    """Drawings, pivot caches and images are copied byte for byte (the package is spliced, not
+    re-saved), so the user's workbook comes back whole with our sheets added."""
+    import zipfile
+
+    src = with_part(user_workbook(tmp_path / "a.xlsx"), tmp_path / "lab.xlsx", part, data)
+    digest = safety.sha256_file(src)
+    out = tmp_path / "o.xlsx"
+    report = write_results(make_analysis(), out, xlsx_source(src))
+    assert report == [out] and report.notes == []
+    with zipfile.ZipFile(out) as z:
+        assert z.read(part) == data
+    wb = openpyxl.load_workbook(out)
+    assert wb.sheetnames[-3:] == ["wallstress results", "wallstress findings", "wallstress methods"]
+    assert safety.sha256_file(src) == digest
+
+
+@pytest.mark.parametrize("part, data, label", [("xl/vbaProject.bin", b"\x00", "macro")])
 def test_xlsx_lossy_workbook_gets_separate_file(tmp_path, part, data, label):
     src = with_part(user_workbook(tmp_path / "a.xlsx"), tmp_path / "lab.xlsx", part, data)
     digest = safety.sha256_file(src)
@@ -490,25 +510,43 @@ def test_in_place_failure_leaves_user_file_and_no_backup(tmp_path, monkeypatch):
     src = user_workbook(tmp_path / "lab.xlsx")
     original = src.read_bytes()
 
-    def broken_save(self, filename):
-        Path(filename).write_bytes(b"PK half")
+    def broken_splice(source, target, *args, **kwargs):
+        Path(target).write_bytes(b"PK half")
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(openpyxl.Workbook, "save", broken_save)
+    monkeypatch.setattr(xlsx_splice, "splice_sheets", broken_splice)
     with pytest.raises(KeyboardInterrupt):
         write_results(make_analysis(), src, xlsx_source(src), in_place=True)
     assert src.read_bytes() == original
     assert sorted(p.name for p in tmp_path.iterdir()) == ["lab.xlsx"]
 
 
-def test_in_place_lossy_writes_separate_file(tmp_path):
+def test_in_place_keeps_images_and_backs_up(tmp_path):
+    import zipfile
+
     src = with_part(
         user_workbook(tmp_path / "a.xlsx"), tmp_path / "lab.xlsx", "xl/media/image1.png", b"x"
     )
-    digest = safety.sha256_file(src)
+    original = src.read_bytes()
     report = write_results(make_analysis(), src, xlsx_source(src), in_place=True)
+    assert report[0] == src and report.backup is not None
+    assert report.backup.read_bytes() == original
+    with zipfile.ZipFile(src) as z:
+        assert z.read("xl/media/image1.png") == b"x"
+
+
+def test_in_place_unspliceable_writes_separate_file(tmp_path):
+    """An encrypted or otherwise unspliceable package: a separate results workbook, no backup."""
+    src = tmp_path / "lab.xlsx"
+    user_workbook(tmp_path / "a.xlsx")
+    src.write_bytes(b"\xd0\xcf\x11\xe0" + b"\x00" * 600)  # an OLE (encrypted) container
+    source = xlsx_source(tmp_path / "a.xlsx")
+    source.path = src
+    source.sha256 = safety.sha256_file(src)
+    digest = source.sha256
+    report = write_results(make_analysis(), src, source, in_place=True)
     assert report == [tmp_path / "lab.wallstress-results.xlsx"] and report.backup is None
-    assert any("images" in n for n in report.notes)
+    assert any("not copied" in n for n in report.notes)
     assert safety.sha256_file(src) == digest
     assert not list(tmp_path.glob("*backup*"))
 

@@ -14,6 +14,7 @@ import pandas as pd
 from . import findings as _findings
 from . import safety
 from .errors import OutputError
+from .fast_csv import write_csv
 from .methods_sheet import _json_default, methods_record
 from .output_parts import WriteReport, _sidecar
 
@@ -67,24 +68,7 @@ def _to_csv(frame, tmp, source, escape_formulas) -> None:
         delimiter = ";"
     if escape_formulas:
         frame = safety.escape_formula_text(frame)
-    if decimal != ".":
-        frame = _floats_as_text(frame, decimal)
-    frame.to_csv(tmp, index=False, sep=delimiter, decimal=decimal, encoding=encoding)
-
-
-def _floats_as_text(frame: pd.DataFrame, decimal: str) -> pd.DataFrame:
-    """Float columns as shortest round-trip text with ``decimal`` (pandas rounds them otherwise)."""
-    out = frame.copy()
-    for i in range(out.shape[1]):
-        col = out.iloc[:, i]
-        if pd.api.types.is_float_dtype(col.dtype):
-            text = (
-                col.map(repr, na_action="ignore")
-                .astype(object)
-                .str.replace(".", decimal, regex=False)
-            )
-            out.isetitem(i, text.where(col.notna(), None))
-    return out
+    write_csv(frame, tmp, delimiter=delimiter, decimal=decimal, encoding=encoding)
 
 
 def _to_parquet(frame, tmp, sheet, report) -> None:

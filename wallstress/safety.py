@@ -8,8 +8,6 @@ Everything that touches the user's disk on the writing side goes through here:
 - :func:`sha256_file` and :func:`backup_copy` back the "input is never changed" invariant.
 - :func:`formula_like_mask`, :func:`formula_like_cells` and :func:`escape_formula_text` deal with text
   that a spreadsheet program would run as a formula when it opens a CSV file.
-- :func:`lossy_workbook_parts` lists the parts of an ``.xlsx`` file that openpyxl cannot carry over,
-  so that a degraded copy of a user's workbook is never written.
 """
 
 from __future__ import annotations
@@ -20,7 +18,6 @@ import os
 import re
 import shutil
 import tempfile
-import zipfile
 from collections.abc import Iterator
 from datetime import datetime
 from pathlib import Path
@@ -396,55 +393,3 @@ _LOSSY_PREFIXES: tuple[tuple[str, str], ...] = (
 )
 
 _VML_NON_NOTE_RE = re.compile(rb'ObjectType\s*=\s*"(?!Note")', re.IGNORECASE)
-
-
-def lossy_workbook_parts(path: str | os.PathLike) -> list[str]:
-    """What openpyxl would drop when loading and saving this ``.xlsx`` (empty list: safe to copy).
-
-    Parameters
-    ----------
-    path : path-like
-        An ``.xlsx`` file.
-
-    Returns
-    -------
-    list of str
-        Plain descriptions, one per kind of part (e.g. ``"macros (VBA project)"``,
-        ``"extensions (extLst) in sheet xl/worksheets/sheet1.xml"``), in a stable order.
-
-    Notes
-    -----
-    Checked: the package part names (macros, drawings, charts, images, pivot tables, slicers,
-    external links, threaded comments, controls, data model, connections, cell metadata, custom XML),
-    ``extLst`` extension blocks inside worksheets (newer conditional formats, data validations,
-    sparklines), and legacy VML drawings holding anything other than comment boxes. ``extLst`` in
-    ``workbook.xml`` and ``styles.xml`` is not counted: Excel writes it into almost every file (default
-    slicer styles, calculation features), and the contents that depend on it are parts caught above.
-    A file that is not a readable zip package is reported as such.
-    """
-    try:
-        zf = zipfile.ZipFile(path)
-    except (zipfile.BadZipFile, OSError) as exc:
-        return [f"an unreadable workbook package ({exc})"]
-    found: list[str] = []
-    with zf:
-        names = zf.namelist()
-        for prefix, label in _LOSSY_PREFIXES:
-            if any(n.startswith(prefix) for n in names) and label not in found:
-                found.append(label)
-        for name in names:
-            if (
-                name.startswith("xl/worksheets/")
-                and name.endswith(".xml")
-                and "/_rels/" not in name
-            ):
-                with zf.open(name) as fh:
-                    data = fh.read()
-                if b"extLst" in data and re.search(rb"<(?:\w+:)?extLst[\s>]", data):
-                    found.append(f"extensions (extLst) in sheet {name}")
-            elif name.startswith("xl/drawings/") and name.endswith(".vml"):
-                with zf.open(name) as fh:
-                    data = fh.read()
-                if _VML_NON_NOTE_RE.search(data):
-                    found.append(f"legacy shapes or controls in {name}")
-    return found
