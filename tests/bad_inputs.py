@@ -272,3 +272,265 @@ CORPUS: list[tuple[str, object, str, str]] = [
     ("duplicate_headers_csv", duplicate_headers_csv, "finding", "duplicate_header"),
     ("xlsx_named_csv", xlsx_named_csv, "finding", "format_differs_from_name"),
 ]
+
+
+# ---- round 2: files found by hand (issue 8) -------------------------------------------------
+
+_ROWS_200 = [[f"D{i:03d}", "MF"[i % 2], 150 + i % 40, 55 + i % 30, 9, 47, 9] for i in range(200)]
+
+
+def stray_cells_xlsx(folder: Path) -> Path:
+    """200 study rows plus one stray cell at XFD1 and one at A1048576 (the sheet's limits)."""
+    p = folder / "stray_cells.xlsx"
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Studies"
+    ws.append(GOOD_HEADER)
+    for r in _ROWS_200:
+        ws.append(r)
+    ws["XFD1"] = "stray"
+    ws["A1048576"] = "stray"
+    wb.save(p)
+    return p
+
+
+_ODS_NS = (
+    'xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
+    'xmlns:table="urn:oasis:names:tc:opendocument:xmlns:table:1.0" '
+    'xmlns:text="urn:oasis:names:tc:opendocument:xmlns:text:1.0"'
+)
+
+
+def _ods_cell(v, repeat: int = 1) -> str:
+    rep = f' table:number-columns-repeated="{repeat}"' if repeat > 1 else ""
+    if v is None:
+        return f"<table:table-cell{rep}/>"
+    if isinstance(v, str):
+        return f'<table:table-cell{rep} office:value-type="string"><text:p>{v}</text:p></table:table-cell>'
+    return (
+        f'<table:table-cell{rep} office:value-type="float" office:value="{v}">'
+        f"<text:p>{v}</text:p></table:table-cell>"
+    )
+
+
+def ods_file(path: Path, rows_xml: str, sheet: str = "Studies") -> Path:
+    """A minimal OpenDocument spreadsheet (OASIS ODF 1.2) from ``<table:table-row>`` XML."""
+    content = (
+        f'<?xml version="1.0" encoding="UTF-8"?><office:document-content {_ODS_NS} '
+        f'office:version="1.2"><office:body><office:spreadsheet><table:table table:name="{sheet}">'
+        f"{rows_xml}</table:table></office:spreadsheet></office:body></office:document-content>"
+    )
+    manifest = (
+        '<?xml version="1.0" encoding="UTF-8"?><manifest:manifest xmlns:manifest="urn:oasis:names:'
+        'tc:opendocument:xmlns:manifest:1.0" manifest:version="1.2"><manifest:file-entry '
+        'manifest:full-path="/" manifest:media-type="application/vnd.oasis.opendocument.spreadsheet"/>'
+        '<manifest:file-entry manifest:full-path="content.xml" manifest:media-type="text/xml"/>'
+        "</manifest:manifest>"
+    )
+    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as zf:
+        zf.writestr(zipfile.ZipInfo("mimetype"), "application/vnd.oasis.opendocument.spreadsheet")
+        zf.writestr("META-INF/manifest.xml", manifest)
+        zf.writestr("content.xml", content)
+    return path
+
+
+def _ods_rows(rows) -> str:
+    return "".join(
+        "<table:table-row>" + "".join(_ods_cell(v) for v in r) + "</table:table-row>" for r in rows
+    )
+
+
+def stray_cells_ods(folder: Path) -> Path:
+    """ods: 200 rows, then repeated empty rows/cells up to a stray cell at the sheet's far corner."""
+    far = (
+        '<table:table-row table:number-rows-repeated="1048370">'
+        '<table:table-cell table:number-columns-repeated="16384"/></table:table-row>'
+        "<table:table-row>" + _ods_cell(None, 16383) + _ods_cell("stray") + "</table:table-row>"
+    )
+    return ods_file(folder / "stray_cells.ods", _ods_rows([GOOD_HEADER, *_ROWS_200]) + far)
+
+
+def repeated_values_ods(folder: Path) -> Path:
+    """ods: one value repeated over 16,000 columns and 10^6 rows (16 x 10^9 cells if expanded)."""
+    rep = (
+        '<table:table-row table:number-rows-repeated="1000000">'
+        + _ods_cell(1, 16000)
+        + "</table:table-row>"
+    )
+    return ods_file(folder / "repeated.ods", _ods_rows([GOOD_HEADER, *GOOD_ROWS]) + rep)
+
+
+def huge_cell_csv(folder: Path, size: int = 50 * 1024**2) -> Path:
+    """A CSV with one 50 MB quoted comment cell (Python's csv module stops at 131,072 chars)."""
+    header = [*GOOD_HEADER, "comment"]
+    body = _csv_text(header=header, rows=[[*GOOD_ROWS[0], "ok"]])
+    big = ",".join(map(str, GOOD_ROWS[1])) + ',"' + "y" * size + '"\n'
+    return _write(folder, "huge_cell.csv", body + big)
+
+
+def wide_csv(folder: Path, n_extra: int = 20_000, n_rows: int = 50) -> Path:
+    """50 rows x 20,004 columns: the usual headers then 20,000 invented extra columns."""
+    header = ["study_id", "IVSd (mm)", "LVIDd (mm)", "PWd (mm)"] + [
+        f"extra_{j}" for j in range(n_extra)
+    ]
+    extra = ",".join(str(j % 97) for j in range(n_extra))
+    lines = [",".join(header)] + [f"W{i:03d},9,47,9,{extra}" for i in range(n_rows)]
+    return _write(folder, "wide.csv", "\n".join(lines) + "\n")
+
+
+def nul_middle_csv(folder: Path) -> Path:
+    """A NUL byte in the middle of a cell, far past the start of the file."""
+    rows = [[f"N{i:04d}", "F", 160, 60, 9, 47, 9] for i in range(5000)]
+    text = _csv_text(rows=rows).encode()
+    mid = len(text) // 2
+    return _write(folder, "nul_middle.csv", text[:mid] + b"\x00" + text[mid:])
+
+
+def bom_only_csv(folder: Path) -> Path:
+    return _write(folder, "bom_only.csv", b"\xef\xbb\xbf")
+
+
+def empty_sheet_part_xlsx(folder: Path) -> Path:
+    """An xlsx whose xl/worksheets/sheet1.xml is 0 bytes."""
+    good = good_xlsx(folder / "_good_for_empty_part.xlsx")
+    return _replace_part(good, folder / "empty_part.xlsx", "xl/worksheets/sheet1.xml", b"")
+
+
+def many_sheets_xlsx(folder: Path, n: int = 200) -> Path:
+    """200 sheets of notes; the study list is on the last one."""
+    p = folder / "many_sheets.xlsx"
+    wb = openpyxl.Workbook()
+    wb.active.title = "Sheet 1"
+    wb.active.append(["notes only"])
+    for i in range(2, n):
+        wb.create_sheet(f"Sheet {i}").append(["notes", "only", i])
+    ws = wb.create_sheet("Studies")
+    ws.append(GOOD_HEADER)
+    for r in GOOD_ROWS:
+        ws.append(r)
+    wb.save(p)
+    return p
+
+
+UNICODE_SHEET = "Échos «2024» 'Ålborg' \"Süd\" ü"[:31]
+
+
+def unicode_sheet_xlsx(folder: Path) -> Path:
+    """A 31-character sheet name with non-ASCII letters and both kinds of quote."""
+    return good_xlsx(folder / "unicode_sheet.xlsx", title=UNICODE_SHEET)
+
+
+def repeated_header_csv(folder: Path) -> Path:
+    """Concatenated exports: the header row comes back every 10 lines."""
+    lines = []
+    for block in range(5):
+        lines.append(",".join(GOOD_HEADER))
+        lines += [f"R{block}{i},F,160,60,9,47,9" for i in range(9)]
+    return _write(folder, "repeated_header.csv", "\n".join(lines) + "\n")
+
+
+ODD_NUMBERS = ["1e400", "-0", "∞", "NaN", "1.2.3", "١٢", "47"]
+
+
+def odd_numbers_csv(folder: Path) -> Path:
+    """Number-like text a parser may get wrong: overflow, negative zero, infinity sign, NaN, two
+    decimal points, Arabic-Indic digits; one plain value."""
+    rows = [[f"O{i}", "F", 160, 60, 9, v, 9] for i, v in enumerate(ODD_NUMBERS)]
+    return _write(folder, "odd_numbers.csv", _csv_text(rows=rows))
+
+
+def odd_dates_xlsx(folder: Path) -> Path:
+    """A study_date column with '0000-00-00' (text) and serial 2958466 (the day after 9999-12-31,
+    stored as a date-formatted number)."""
+    p = folder / "odd_dates.xlsx"
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append([*GOOD_HEADER, "study_date"])
+    ws.append([*GOOD_ROWS[0], "0000-00-00"])
+    ws.append([*GOOD_ROWS[1], 2958466])
+    ws.cell(row=3, column=len(GOOD_HEADER) + 1).number_format = "yyyy-mm-dd"
+    ws.append(["D003", "F", 160, 60, 9, 47, 9, 45000])
+    ws.cell(row=4, column=len(GOOD_HEADER) + 1).number_format = "yyyy-mm-dd"
+    wb.save(p)
+    return p
+
+
+def odd_dates_csv(folder: Path) -> Path:
+    rows = [[*GOOD_ROWS[0], "0000-00-00"], [*GOOD_ROWS[1], "2958466"]]
+    return _write(folder, "odd_dates.csv", _csv_text(header=[*GOOD_HEADER, "study_date"], rows=rows))
+
+
+def gzip_named_csv(folder: Path) -> Path:
+    import gzip
+
+    return _write(folder, "zipped.csv", gzip.compress(_csv_text().encode()))
+
+
+def dev_zero_link(folder: Path) -> Path:
+    p = folder / "studies.csv"
+    p.symlink_to("/dev/zero")
+    return p
+
+
+def fifo_csv(folder: Path) -> Path:
+    import os
+
+    p = folder / "pipe.csv"
+    os.mkfifo(p)
+    return p
+
+
+def folder_named_xlsx(folder: Path) -> Path:
+    p = folder / "x.xlsx"
+    p.mkdir()
+    return p
+
+
+def sparse_2g_csv(folder: Path) -> Path:
+    """A 2 GB sparse file (all NUL bytes, no disk used) named .csv."""
+    p = folder / "sparse.csv"
+    with open(p, "wb") as fh:
+        fh.truncate(2 * 1024**3)
+    return p
+
+
+def big_text_csv(folder: Path) -> Path:
+    """A sparse file whose first bytes are a real header, then 2 GB of NUL: must be refused on its
+    size, not read."""
+    p = folder / "big.csv"
+    with open(p, "wb") as fh:
+        fh.write(_csv_text().encode())
+        fh.truncate(2 * 1024**3)
+    return p
+
+
+def shared_strings_xlsx(folder: Path, n: int = 1_000_000) -> Path:
+    """A workbook whose sharedStrings.xml holds 10^6 unique strings though few cells use them."""
+    good = good_xlsx(folder / "_good_for_sst.xlsx")
+    ns = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
+    sst = (
+        f'<?xml version="1.0" encoding="UTF-8"?><sst xmlns="{ns}" count="{n}" uniqueCount="{n}">'
+        + "".join(f"<si><t>s{i:07d}</t></si>" for i in range(n))
+        + "</sst>"
+    ).encode()
+    p = folder / "shared_strings.xlsx"
+    with zipfile.ZipFile(good) as zin, zipfile.ZipFile(p, "w", zipfile.ZIP_DEFLATED) as zout:
+        for info in zin.infolist():
+            data = zin.read(info.filename)
+            if info.filename == "[Content_Types].xml" and b"sharedStrings" not in data:
+                data = data.replace(
+                    b"</Types>",
+                    b'<Override PartName="/xl/sharedStrings.xml" ContentType="application/'
+                    b'vnd.openxmlformats-officedocument.spreadsheetml.sharedStrings+xml"/></Types>',
+                )
+            if info.filename == "xl/_rels/workbook.xml.rels" and b"sharedStrings" not in data:
+                data = data.replace(
+                    b"</Relationships>",
+                    b'<Relationship Id="rIdSst" Type="http://schemas.openxmlformats.org/'
+                    b'officeDocument/2006/relationships/sharedStrings" Target="sharedStrings.xml"/>'
+                    b"</Relationships>",
+                )
+            if info.filename != "xl/sharedStrings.xml":
+                zout.writestr(info, data)
+        zout.writestr("xl/sharedStrings.xml", sst)
+    return p

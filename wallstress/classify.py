@@ -43,70 +43,109 @@ GEOMETRY_8 = {
 }
 
 
+SEXES: tuple[str, ...] = ("F", "M")
+
+
 def _sex_array(sex) -> np.ndarray:
     return np.asarray(pd.Series(sex, dtype=object).to_numpy(), dtype=object)
 
 
-def abnormal(values, sex, refset: ReferenceSet, measure: str) -> np.ndarray:
+def sex_masks(sex) -> dict[str, np.ndarray]:
+    """``{"F": mask, "M": mask}`` of the rows of each sex (anything else is in neither)."""
+    s = _sex_array(sex)
+    return {code: s == code for code in SEXES}
+
+
+def _masks(sex, masks):
+    return sex_masks(sex) if masks is None else masks
+
+
+def abnormal(values, sex, refset: ReferenceSet, measure: str, *, masks=None) -> np.ndarray:
     """Whether each value is above the set's abnormal threshold for its sex.
 
     Returns a float array: 1.0 (abnormal), 0.0 (not), NaN (value or sex missing, or the set has no
-    threshold for that measure and sex).
+    threshold for that measure and sex). ``masks`` (from :func:`sex_masks`) saves re-reading sex.
     """
     v = np.asarray(values, dtype=float)
-    s = _sex_array(sex)
+    masks = _masks(sex, masks)
     out = np.full(v.shape, np.nan)
-    for code in ("F", "M"):
+    known = ~np.isnan(v)
+    for code in SEXES:
         cut = refset.cutoff(measure, code)
         if cut is None:
             continue
-        m = (s == code) & ~np.isnan(v)
-        out[m] = cut.met(v[m]).astype(float)
+        m = masks[code] & known
+        out[m] = cut.met(v)[m]
     return out
+
+
+def grade_codes(
+    values, sex, refset: ReferenceSet, measure: str, *, masks=None
+) -> tuple[np.ndarray, list[str]]:
+    """Severity grade per value as integer codes into a list of names (code 0 is "", undecided)."""
+    v = np.asarray(values, dtype=float)
+    masks = _masks(sex, masks)
+    names = ["", "normal"]
+    codes = np.zeros(v.shape, dtype=np.int8)
+    known = ~np.isnan(v)
+    for code in SEXES:
+        cuts = refset.grades(measure, code)
+        if not cuts:
+            continue
+        m = masks[code] & known
+        codes[m] = 1
+        for c in cuts:  # below_normal first, then upward grades in ascending order: later wins
+            if c.grade not in names:
+                names.append(c.grade)
+            codes[m & c.met(v)] = names.index(c.grade)
+    return codes, names
 
 
 def grade(values, sex, refset: ReferenceSet, measure: str) -> np.ndarray:
     """Severity grade per value: ``normal``, ``below_normal`` or the highest upward grade met
     (``increased`` / ``mild`` / ``moderate`` / ``severe``); "" when it cannot be decided."""
-    v = np.asarray(values, dtype=float)
-    s = _sex_array(sex)
-    out = np.full(v.shape, "", dtype=object)
-    for code in ("F", "M"):
-        cuts = refset.grades(measure, code)
-        if not cuts:
-            continue
-        m = (s == code) & ~np.isnan(v)
-        g = np.full(int(m.sum()), "normal", dtype=object)
-        vm = v[m]
-        for c in cuts:  # below_normal first, then upward grades in ascending order: later wins
-            g[c.met(vm)] = c.grade
-        out[m] = g
-    return out
+    codes, names = grade_codes(values, sex, refset, measure)
+    return np.asarray(names, dtype=object)[codes]
+
+
+GEOMETRY_4_NAMES: tuple[str, ...] = ("",) + GEOMETRY_4  # code 0: undecidable
+GEOMETRY_8_NAMES: tuple[str, ...] = ("",) + tuple(
+    GEOMETRY_8[(bool(i & 4), bool(i & 2), bool(i & 1))] for i in range(8)
+)  # code 1 + 4*mass + 2*rwt + dilated
+
+
+def geometry_4_codes(mass_index, rwt, sex, refset: ReferenceSet, *, masks=None) -> np.ndarray:
+    """Four-group geometry as codes into ``GEOMETRY_4_NAMES`` (0 when undecidable)."""
+    masks = _masks(sex, masks)
+    lvh = abnormal(mass_index, sex, refset, refset.mass_index, masks=masks)
+    conc = abnormal(rwt, sex, refset, "rwt", masks=masks)
+    ok = ~np.isnan(lvh) & ~np.isnan(conc)
+    # 1 normal, 2 concentric remodelling, 3 eccentric hypertrophy, 4 concentric hypertrophy
+    idx = 1 + 2 * (lvh == 1) + (conc == 1)
+    return np.where(ok, idx, 0).astype(np.int8)
 
 
 def geometry_4(mass_index, rwt, sex, refset: ReferenceSet) -> np.ndarray:
     """Four-group geometry (Ganau 1992) under the set's mass index thresholds. "" when undecidable."""
-    lvh = abnormal(mass_index, sex, refset, refset.mass_index)
-    conc = abnormal(rwt, sex, refset, "rwt")
-    out = np.full(lvh.shape, "", dtype=object)
-    ok = ~np.isnan(lvh) & ~np.isnan(conc)
-    table = np.array(GEOMETRY_4, dtype=object)  # index = 2*lvh + conc... mapped below
-    idx = np.where(lvh[ok] == 1, 2, 0) + np.where(conc[ok] == 1, 1, 0)
-    # 0 normal, 1 concentric remodelling, 2 eccentric hypertrophy, 3 concentric hypertrophy
-    out[ok] = table[idx]
-    return out
+    return np.asarray(GEOMETRY_4_NAMES, dtype=object)[
+        geometry_4_codes(mass_index, rwt, sex, refset)
+    ]
+
+
+def geometry_8_codes(
+    mass_index, rwt, edv_index, sex, refset: ReferenceSet, *, masks=None
+) -> np.ndarray:
+    """Eight-group geometry as codes into ``GEOMETRY_8_NAMES`` (0 when undecidable)."""
+    masks = _masks(sex, masks)
+    lvh = abnormal(mass_index, sex, refset, refset.mass_index, masks=masks)
+    conc = abnormal(rwt, sex, refset, "rwt", masks=masks)
+    dil = abnormal(edv_index, sex, refset, "edv_index_ml_m2", masks=masks)
+    ok = ~np.isnan(lvh) & ~np.isnan(conc) & ~np.isnan(dil)
+    idx = 1 + 4 * (lvh == 1) + 2 * (conc == 1) + (dil == 1)
+    return np.where(ok, idx, 0).astype(np.int8)
 
 
 def geometry_8(mass_index, rwt, edv_index, sex, refset: ReferenceSet) -> np.ndarray:
     """Eight-group geometry (Gaasch & Zile 2011). "" when undecidable or the set has no EDV limit."""
-    lvh = abnormal(mass_index, sex, refset, refset.mass_index)
-    conc = abnormal(rwt, sex, refset, "rwt")
-    dil = abnormal(edv_index, sex, refset, "edv_index_ml_m2")
-    out = np.full(lvh.shape, "", dtype=object)
-    ok = ~np.isnan(lvh) & ~np.isnan(conc) & ~np.isnan(dil)
-    names = np.empty(8, dtype=object)
-    for (a, b, c), name in GEOMETRY_8.items():
-        names[4 * a + 2 * b + c] = name
-    idx = 4 * (lvh[ok] == 1) + 2 * (conc[ok] == 1) + (dil[ok] == 1)
-    out[ok] = names[idx.astype(int)]
-    return out
+    codes = geometry_8_codes(mass_index, rwt, edv_index, sex, refset)
+    return np.asarray(GEOMETRY_8_NAMES, dtype=object)[codes]

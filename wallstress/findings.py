@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from pandas.api.types import union_categoricals
 
 FINDING_COLUMNS: tuple[str, ...] = (
     "row",
@@ -29,12 +30,88 @@ FINDING_COLUMNS: tuple[str, ...] = (
 SEVERITIES: tuple[str, ...] = ("error", "warning", "note")
 
 
-def empty() -> pd.DataFrame:
-    """An empty findings table with the right columns and dtypes."""
+# The text columns repeat a few strings over many rows (at 10^6 studies the note
+# ``edv_from_teichholz`` alone is on almost every row), so they are pandas Categoricals: one integer
+# code per row and each distinct text once. ``severity`` has fixed, ordered categories (note <
+# warning < error) so that every table shares them and a rank mapped from them stays ordered.
+TEXT_COLUMNS: tuple[str, ...] = FINDING_COLUMNS[1:]
+SEVERITY_DTYPE = pd.CategoricalDtype(("note", "warning", "error"), ordered=True)
+
+
+def _categorical(codes: np.ndarray, categories, dtype=None) -> pd.Categorical:
+    if dtype is None:
+        dtype = pd.CategoricalDtype(pd.Index(list(categories), dtype=object), ordered=False)
+    return pd.Categorical.from_codes(
+        _small_codes(codes, len(dtype.categories)), dtype=dtype, validate=False
+    )
+
+
+def _small_codes(codes, n_categories: int) -> np.ndarray:
+    codes = np.asarray(codes)
+    for t in (np.int8, np.int16, np.int32):
+        if n_categories < np.iinfo(t).max:
+            return codes.astype(t, copy=False)
+    return codes.astype(np.int64, copy=False)
+
+
+def _constant(text: str, n: int) -> pd.Categorical:
+    """``n`` copies of ``text`` as a Categorical with one category."""
+    return _categorical(np.zeros(n, dtype=np.int8), [str(text)])
+
+
+def _severity(severity: str, n: int) -> pd.Categorical:
+    code = SEVERITY_DTYPE.categories.get_loc(severity)
+    return pd.Categorical.from_codes(
+        np.full(n, code, dtype=np.int8), dtype=SEVERITY_DTYPE, validate=False
+    )
+
+
+def text_codes(values, to_text) -> tuple[np.ndarray, list[str]]:
+    """Per-row codes into a list of distinct texts, ``to_text`` called once per distinct value.
+
+    Values that compare equal but have different types (``1``, ``1.0``, ``True``) are told apart,
+    so each row's text is exactly ``to_text`` of its own value. Missing values (None, NaN) are
+    passed to ``to_text`` once, as the first of them.
+    """
+    arr = (
+        np.asarray(values, dtype=object).ravel()
+        if not isinstance(values, np.ndarray)
+        else values.ravel()
+    )
+    n = arr.size
+    if n == 0:
+        return np.zeros(0, dtype=np.int64), []
+    if arr.dtype.kind == "f":
+        key, _ = pd.factorize(arr, use_na_sentinel=False)
+    elif arr.dtype.kind in "iub":
+        key, _ = pd.factorize(arr)
+    else:
+        arr = arr.astype(object, copy=False)
+        vcode, _ = pd.factorize(arr, use_na_sentinel=False)
+        tcode, types = pd.factorize(np.fromiter(map(type, arr), dtype=object, count=n))
+        key = vcode if len(types) == 1 else pd.factorize(vcode * len(types) + tcode)[0]
+    first = np.unique(key, return_index=True)[1]  # representative row of each key, in key order
+    texts = [to_text(v) for v in arr[first].tolist()]
+    tcodes, categories = pd.factorize(np.asarray(texts, dtype=object))
+    return tcodes[key], [str(c) for c in categories]
+
+
+def empty(*, categorical: bool = False) -> pd.DataFrame:
+    """An empty findings table with the right columns and dtypes (text columns Categorical if asked)."""
+    if not categorical:
+        return pd.DataFrame(
+            {
+                "row": pd.Series([], dtype="int64"),
+                **{c: pd.Series([], dtype="object") for c in TEXT_COLUMNS},
+            }
+        )
     return pd.DataFrame(
         {
             "row": pd.Series([], dtype="int64"),
-            **{c: pd.Series([], dtype="object") for c in FINDING_COLUMNS[1:]},
+            **{
+                c: pd.Series(_severity("note", 0) if c == "severity" else _constant("", 0))
+                for c in TEXT_COLUMNS
+            },
         }
     )
 
@@ -48,6 +125,7 @@ def make(
     column: str = "",
     field: str = "",
     values=None,
+    messages=None,
 ) -> pd.DataFrame:
     """Findings for many rows at once (vectorised: one call per rule, not per row).
 
@@ -59,53 +137,38 @@ def make(
         The same for every row of this rule.
     values : array-like, optional
         The offending value per row (written as text).
+    messages : tuple (codes, texts), optional
+        A message per row instead of ``message``: integer codes into a list of distinct texts (as
+        returned by :func:`text_codes`).
+
+    Returns
+    -------
+    DataFrame
+        ``FINDING_COLUMNS``; ``row`` int64, the text columns Categorical.
     """
     if severity not in SEVERITIES:
         raise ValueError(f"severity must be one of {SEVERITIES}, got {severity!r}")
     rows = np.asarray(rows, dtype="int64").ravel()
     n = rows.size
     if values is None:
-        value_text = np.full(n, "", dtype=object)
+        value = _constant("", n)
     else:
-        value_text = pd.Series(np.asarray(values, dtype=object).ravel()).map(_as_text).to_numpy()
+        value = _categorical(*text_codes(values, _as_text))
+    if messages is None:
+        msg = _constant(message, n)
+    else:
+        msg = _categorical(*messages)
     return pd.DataFrame(
         {
             "row": rows,
-            "column": _constant_text(column, n),
-            "field": _constant_text(field, n),
-            "value": value_text,
-            "severity": _constant_text(severity, n),
-            "code": _constant_text(code, n),
-            "message": _constant_text(message, n),
+            "column": _constant(column, n),
+            "field": _constant(field, n),
+            "value": value,
+            "severity": _severity(severity, n),
+            "code": _constant(code, n),
+            "message": msg,
         }
     )
-
-
-# pandas >= 3 stores text columns as pyarrow strings: converting a long object array costs one
-# Python-level pass per cell, while a repeated pyarrow scalar is built in C. Same dtype, same values.
-_FAST_CONSTANT_MIN_ROWS = 1024
-
-
-def _text_dtype():
-    dtype = pd.DataFrame({"x": np.array(["a"], dtype=object)})["x"].dtype
-    if getattr(dtype, "storage", None) != "pyarrow":
-        return None
-    try:
-        import pyarrow as pa
-    except ImportError:  # pragma: no cover - pandas' pyarrow strings imply pyarrow
-        return None
-    return dtype, pa
-
-
-_TEXT = _text_dtype()
-
-
-def _constant_text(text: str, n: int):
-    """``n`` copies of ``text`` as a text column (the dtype pandas would infer for the object array)."""
-    if _TEXT is None or n < _FAST_CONSTANT_MIN_ROWS:
-        return np.full(n, text, dtype=object)
-    dtype, pa = _TEXT
-    return pd.array(pa.repeat(pa.scalar(str(text), type=pa.large_string()), n), dtype=dtype)
 
 
 def _as_text(v) -> str:
@@ -118,13 +181,99 @@ def _as_text(v) -> str:
     return str(v)
 
 
-def concat(parts) -> pd.DataFrame:
-    """Concatenate findings tables, sorted by row (file-level first), stable within a row."""
+def _as_categorical(s: pd.Series, column: str) -> pd.Categorical:
+    """A findings text column as a Categorical (tables built elsewhere may hold plain text)."""
+    if column == "severity":
+        if isinstance(s.dtype, pd.CategoricalDtype) and s.dtype == SEVERITY_DTYPE:
+            return s.array
+        return pd.Categorical(s.astype(object), dtype=SEVERITY_DTYPE)
+    if isinstance(s.dtype, pd.CategoricalDtype):
+        arr = s.array
+        if arr.categories.dtype == object:
+            return arr
+        return pd.Categorical.from_codes(
+            arr.codes, categories=pd.Index(arr.categories, dtype=object), validate=False
+        )
+    codes, uniques = pd.factorize(s.to_numpy(dtype=object))
+    return pd.Categorical.from_codes(
+        codes, categories=pd.Index(uniques, dtype=object), validate=False
+    )
+
+
+def concat(parts, *, categorical: bool = False) -> pd.DataFrame:
+    """Concatenate findings tables, sorted by row (file-level first), stable within a row.
+
+    The text columns' categories are merged (``union_categoricals``); rows are reordered by a
+    stable argsort of ``row`` only when the parts are not already in order. With
+    ``categorical=False`` (default) the text columns come back as plain text (:func:`as_text`), as
+    every consumer of a findings table expects; the pipeline keeps them Categorical until its end.
+    """
     parts = [p for p in parts if p is not None and len(p)]
     if not parts:
-        return empty()
-    out = pd.concat(parts, ignore_index=True)
-    return out.sort_values("row", kind="stable").reset_index(drop=True)
+        return empty(categorical=categorical)
+    if any(tuple(p.columns) != FINDING_COLUMNS for p in parts):  # extra or missing columns
+        out = pd.concat([as_text(p) for p in parts], ignore_index=True)
+        return out.sort_values("row", kind="stable").reset_index(drop=True)
+    rows = np.concatenate([p["row"].to_numpy(dtype="int64") for p in parts])
+    order = None
+    if rows.size > 1 and (rows[1:] < rows[:-1]).any():
+        order = np.argsort(rows, kind="stable")
+        rows = rows[order]
+    cols: dict[str, object] = {"row": rows}
+    for c in TEXT_COLUMNS:
+        cats = [_as_categorical(p[c], c) for p in parts]
+        merged = cats[0] if len(cats) == 1 else union_categoricals(cats)
+        if order is not None:
+            merged = pd.Categorical.from_codes(
+                merged.codes[order], dtype=merged.dtype, validate=False
+            )
+        cols[c] = merged
+    out = pd.DataFrame(cols)
+    return out if categorical else as_text(out)
+
+
+def _text_dtype():
+    """The dtype pandas gives a text column built from Python strings (``str`` in pandas 3)."""
+    return pd.DataFrame({"x": np.array(["a"], dtype=object)})["x"].dtype
+
+
+_TEXT_DTYPE = _text_dtype()
+
+
+def text_from_codes(codes: np.ndarray, names) -> pd.api.extensions.ExtensionArray | np.ndarray:
+    """``names[codes]`` as a plain text column (pandas' default text dtype), built in C.
+
+    ``codes`` are integer positions into ``names`` (-1 gives a missing value). Same values and dtype
+    as a column built from the object array ``names[codes]``, without one Python step per cell.
+    """
+    codes = np.asarray(codes)
+    names = np.asarray(names, dtype=object)
+    if getattr(_TEXT_DTYPE, "storage", None) != "pyarrow":  # pragma: no cover - pandas < 3
+        out = names[np.where(codes >= 0, codes, 0)] if len(names) else np.full(codes.size, None)
+        return np.where(codes >= 0, out, None).astype(object)
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    missing = codes < 0
+    idx = pa.array(codes.astype(np.int32, copy=False), mask=missing if missing.any() else None)
+    dictionary = pa.array(list(names) if len(names) else [""], type=pa.large_string())
+    return pd.array(pc.take(dictionary, idx), dtype=_TEXT_DTYPE)
+
+
+def as_text(findings: pd.DataFrame) -> pd.DataFrame:
+    """A findings table with every Categorical column as plain text (same values, pandas' text dtype).
+
+    For consumers that treat the columns as plain strings (``.map`` then ``max``, parquet files
+    read back as text).
+    """
+    cols = {}
+    for c in findings.columns:
+        s = findings[c]
+        if isinstance(s.dtype, pd.CategoricalDtype):
+            cols[c] = text_from_codes(s.array.codes, s.array.categories.to_numpy(dtype=object))
+        else:
+            cols[c] = s.to_numpy() if c == "row" else s.array
+    return pd.DataFrame(cols, index=findings.index)
 
 
 def flags_per_row(findings: pd.DataFrame, n_rows: int) -> pd.Series:
@@ -133,12 +282,24 @@ def flags_per_row(findings: pd.DataFrame, n_rows: int) -> pd.Series:
     Vectorised: the (row, code) pairs are de-duplicated and ranked within their row with numpy; each
     distinct sequence of codes (there are few) is joined once and broadcast to its rows.
     """
-    flags = np.full(n_rows, "", dtype=object)
+    codes, texts = flag_codes(findings, n_rows)
+    return pd.Series(np.asarray(texts, dtype=object)[codes], dtype=object)
+
+
+def flag_codes(findings: pd.DataFrame, n_rows: int) -> tuple[np.ndarray, list[str]]:
+    """:func:`flags_per_row` as integer codes per row into a list of distinct flag texts ("" first)."""
+    flag = np.zeros(n_rows, dtype=np.int64)
+    texts_out = [""]
     rowpos = findings["row"].to_numpy(dtype="int64")
     keep = rowpos >= 0
     if keep.any():
         rows = rowpos[keep]
-        code_id, code_names = pd.factorize(findings["code"].to_numpy(dtype=object)[keep])
+        code = findings["code"]
+        if isinstance(code.dtype, pd.CategoricalDtype):
+            code_id = code.array.codes.astype("int64")[keep]
+            code_names = code.array.categories.to_numpy(dtype=object)
+        else:
+            code_id, code_names = pd.factorize(code.to_numpy(dtype=object)[keep])
         n_codes = len(code_names)
         # first occurrence of each (row, code), in order of appearance (hash-based, no sort)
         first = ~pd.Index(rows * n_codes + code_id).duplicated()
@@ -160,6 +321,7 @@ def flags_per_row(findings: pd.DataFrame, n_rows: int) -> pd.Series:
         else:
             combos, inverse = np.unique(grid, axis=0, return_inverse=True)
         names = np.asarray(code_names, dtype=object)
-        texts = np.array([";".join(names[c[c >= 0]]) for c in combos] + [""], dtype=object)[:-1]
-        flags[rows[starts]] = texts[np.asarray(inverse).ravel()]
-    return pd.Series(flags, dtype=object)
+        texts = [";".join(names[c[c >= 0]]) for c in combos]
+        flag[rows[starts]] = 1 + np.asarray(inverse).ravel()
+        texts_out += texts
+    return flag, texts_out

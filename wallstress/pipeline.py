@@ -24,6 +24,12 @@ LINEAR_METHODS = mass.LINEAR_MASS_METHODS
 AREA_METHODS = mass.AREA_MASS_METHODS
 ES_PRESSURE_CHOICES = (*stress.ES_PRESSURE_METHODS, "measured")
 
+# The findings are built as Categoricals (few distinct texts over many rows: fast to merge, sort
+# and count, and small). ``Analysis.findings`` hands them on as plain text while some consumers
+# (the report's tables, parquet findings files compared with the chunked path) still expect text;
+# set True once those convert Categoricals themselves (issue 7).
+CATEGORICAL_FINDINGS = False
+
 
 def _check_options(o: Options) -> None:
     checks = (
@@ -74,13 +80,34 @@ def analyse_with_findings(
     labels = {m["field"]: m["source_column"] for m in mapped.mapping}
     canonical, vfind = validate(mapped.canonical, labels)
     canonical.index = pd.RangeIndex(len(df))
-    outputs, cfind, used = compute(canonical, options, refset)
-    findings = fnd.concat([prior_findings, mapped.findings, vfind, cfind])
-    outputs["flags"] = fnd.flags_per_row(findings, len(df)).to_numpy()
-    outputs = outputs[list(OUTPUT_COLUMNS)]
+    out, cfind, used = _compute_columns(canonical, options, refset)
+    findings = fnd.concat([prior_findings, mapped.findings, vfind, cfind], categorical=True)
+    out["flags"] = fnd.text_from_codes(*fnd.flag_codes(findings, len(df)))
+    # copy=False: each output its own block (no stacking copy of ~30 float columns); an array that
+    # is read-only (a view of an input) or already in another column is copied first
+    outputs = pd.DataFrame(_own_arrays(out, OUTPUT_COLUMNS), index=canonical.index, copy=False)
+    del out
     table = _append(df, outputs)
     methods = build_methods(options, refset, used, mapped, findings, len(df), version=__version__)
-    return Analysis(table=table, canonical=canonical, outputs=outputs, findings=findings, methods=methods)
+    if not CATEGORICAL_FINDINGS:
+        findings = fnd.as_text(findings)
+    return Analysis(
+        table=table, canonical=canonical, outputs=outputs, findings=findings, methods=methods
+    )
+
+
+def _own_arrays(out: dict, names) -> dict:
+    seen: set[int] = set()
+    cols = {}
+    for k in names:
+        v = out[k]
+        if isinstance(v, np.ndarray) and (
+            not v.flags.writeable or id(v) in seen or v.base is not None
+        ):
+            v = v.copy()
+        seen.add(id(v))
+        cols[k] = v
+    return cols
 
 
 def _append(df: pd.DataFrame, outputs: pd.DataFrame) -> pd.DataFrame:
@@ -96,22 +123,45 @@ def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataF
 
     ``used`` records which formula and which coefficients each measure came from (for methods).
     """
+    out, found, used = _compute_columns(c, o, refset)
+    return (
+        pd.DataFrame(out, index=c.index),
+        found if CATEGORICAL_FINDINGS else fnd.as_text(found),
+        used,
+    )
+
+
+def _text(codes, names):
+    return fnd.text_from_codes(codes, names)
+
+
+def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, pd.DataFrame, dict]:
+    """:func:`compute` as a dict of columns (text columns built from codes, not object arrays)."""
     n = len(c)
 
     def get(name):
         return c[name].to_numpy(dtype=float) if name in c.columns else np.full(n, np.nan)
 
     sex = c["sex"].to_numpy(dtype=object) if "sex" in c.columns else np.full(n, None, dtype=object)
+    masks = classify.sex_masks(sex)
     parts: list[pd.DataFrame] = []
     used: dict[str, dict] = {}
 
     def flag(mask, code, severity, message, field=""):
         mask = np.asarray(mask, dtype=bool)
         if mask.any():
-            parts.append(fnd.make(np.flatnonzero(mask), code=code, severity=severity, message=message,
-                                  column=field, field=field))
+            parts.append(
+                fnd.make(
+                    np.flatnonzero(mask),
+                    code=code,
+                    severity=severity,
+                    message=message,
+                    column=field,
+                    field=field,
+                )
+            )
 
-    out: dict[str, np.ndarray] = {}
+    out: dict[str, object] = {}
     height, weight = get("height_cm"), get("weight_kg")
     ivsd, lvidd, pwd = get("ivsd_cm"), get("lvidd_cm"), get("pwd_cm")
     lvids, pws = get("lvids_cm"), get("pws_cm")
@@ -124,24 +174,36 @@ def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataF
     # LV mass
     linear_method = o.mass_method if o.mass_method in LINEAR_METHODS else "ase_corrected"
     lvm = mass.lv_mass_linear_g(ivsd, lvidd, pwd, method=linear_method)
-    method_col = np.where(np.isnan(lvm), "", linear_method).astype(object)
+    method_names = ["", linear_method, o.mass_method]
+    method_col = np.where(np.isnan(lvm), 0, 1).astype(np.int8)
     if o.mass_method in AREA_METHODS:
         if o.mass_method == "area_length":
-            lvm2d = mass.lv_mass_area_length_g(get("epi_area_cm2"), get("endo_area_cm2"), get("lv_length_cm"))
+            lvm2d = mass.lv_mass_area_length_g(
+                get("epi_area_cm2"), get("endo_area_cm2"), get("lv_length_cm")
+            )
         else:
-            lvm2d = mass.lv_mass_truncated_ellipsoid_g(get("epi_area_cm2"), get("endo_area_cm2"),
-                                                       get("lv_semimajor_cm"), get("lv_truncated_semimajor_cm"))
+            lvm2d = mass.lv_mass_truncated_ellipsoid_g(
+                get("epi_area_cm2"),
+                get("endo_area_cm2"),
+                get("lv_semimajor_cm"),
+                get("lv_truncated_semimajor_cm"),
+            )
         has2d = ~np.isnan(lvm2d)
-        flag(~has2d & ~np.isnan(lvm), "mass_linear_fallback", "note",
-             f"No complete 2D measurements for {o.mass_method}: LV mass by the linear "
-             f"{linear_method} formula instead.", "lv_mass_g")
+        flag(
+            ~has2d & ~np.isnan(lvm),
+            "mass_linear_fallback",
+            "note",
+            f"No complete 2D measurements for {o.mass_method}: LV mass by the linear "
+            f"{linear_method} formula instead.",
+            "lv_mass_g",
+        )
         lvm = np.where(has2d, lvm2d, lvm)
-        method_col = np.where(has2d, o.mass_method, method_col).astype(object)
+        method_col = np.where(has2d, 2, method_col).astype(np.int8)
         used["lv_mass_g"] = {"method": o.mass_method, "fallback": linear_method}
     else:
         used["lv_mass_g"] = {"method": linear_method}
     out["lv_mass_g"] = lvm
-    out["lv_mass_method"] = method_col
+    out["lv_mass_method"] = _text(method_col, method_names)
 
     h27 = body_size.height_power(height, 2.7)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -153,7 +215,10 @@ def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataF
     used["rwt"] = {"method": o.rwt_method}
 
     # geometry, four groups
-    out["geometry"] = classify.geometry_4(out[refset.mass_index], rwt, sex, refset)
+    out["geometry"] = _text(
+        classify.geometry_4_codes(out[refset.mass_index], rwt, sex, refset, masks=masks),
+        classify.GEOMETRY_4_NAMES,
+    )
     used["geometry"] = {"method": "ganau_1992", "mass_index": refset.mass_index}
 
     # volumes (measured where present, else Teichholz)
@@ -163,20 +228,37 @@ def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataF
     have_meas = ~np.isnan(edv_meas)
     edv = np.where(have_meas, edv_meas, edv_t)
     out["edv_ml"] = edv
-    out["edv_source"] = np.where(have_meas, "measured", np.where(np.isnan(edv_t), "", "teichholz")).astype(object)
-    flag(~have_meas & ~np.isnan(edv_t), "edv_from_teichholz", "note",
-         "End-diastolic volume estimated by Teichholz from LVIDd (no measured volume): volume-based "
-         "classes are less reliable than with biplane volumes.", "edv_ml")
+    out["edv_source"] = _text(
+        np.where(have_meas, 1, np.where(np.isnan(edv_t), 0, 2)).astype(np.int8),
+        ["", "measured", "teichholz"],
+    )
+    flag(
+        ~have_meas & ~np.isnan(edv_t),
+        "edv_from_teichholz",
+        "note",
+        "End-diastolic volume estimated by Teichholz from LVIDd (no measured volume): volume-based "
+        "classes are less reliable than with biplane volumes.",
+        "edv_ml",
+    )
     with np.errstate(invalid="ignore", divide="ignore"):
         out["edv_index_ml_m2"] = edv / bsa
     out["concentricity_g_ml23"] = mass.concentricity_g_ml23(lvm, edv)
-    out["geometry_8"] = classify.geometry_8(out[refset.mass_index], rwt, out["edv_index_ml_m2"], sex, refset)
+    out["geometry_8"] = _text(
+        classify.geometry_8_codes(
+            out[refset.mass_index], rwt, out["edv_index_ml_m2"], sex, refset, masks=masks
+        ),
+        classify.GEOMETRY_8_NAMES,
+    )
 
     # grades
-    for col, measure, values in (("lvmi_grade", "lvmi_bsa_g_m2", out["lvmi_bsa_g_m2"]),
-                                 ("rwt_grade", "rwt", rwt), ("lvidd_grade", "lvidd_cm", lvidd),
-                                 ("ivsd_grade", "ivsd_cm", ivsd), ("pwd_grade", "pwd_cm", pwd)):
-        out[col] = classify.grade(values, sex, refset, measure)
+    for col, measure, values in (
+        ("lvmi_grade", "lvmi_bsa_g_m2", out["lvmi_bsa_g_m2"]),
+        ("rwt_grade", "rwt", rwt),
+        ("lvidd_grade", "lvidd_cm", lvidd),
+        ("ivsd_grade", "ivsd_cm", ivsd),
+        ("pwd_grade", "pwd_cm", pwd),
+    ):
+        out[col] = _text(*classify.grade_codes(values, sex, refset, measure, masks=masks))
 
     # chamber function
     fs = function.fractional_shortening_pct(lvidd, lvids)
@@ -188,9 +270,14 @@ def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataF
     checks = refset.coefficients("linear_method_checks")
     fs_lo, fs_hi = checks["fs_min_pct"].value, checks["fs_max_pct"].value
     with np.errstate(invalid="ignore"):
-        flag((fs < fs_lo) | (fs > fs_hi), "fs_out_of_range", "warning",
-             f"Fractional shortening outside {fs_lo:g}-{fs_hi:g} %: check the diameters (or the ventricle is "
-             "severely impaired or hyperdynamic).", "fs_pct")
+        flag(
+            (fs < fs_lo) | (fs > fs_hi),
+            "fs_out_of_range",
+            "warning",
+            f"Fractional shortening outside {fs_lo:g}-{fs_hi:g} %: check the diameters (or the ventricle is "
+            "severely impaired or hyperdynamic).",
+            "fs_pct",
+        )
 
     # pressure and stress
     sbp = stress.mean_of_readings(get("sbp_mmhg"), get("sbp_2_mmhg"), get("sbp_3_mmhg"))
@@ -198,13 +285,23 @@ def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataF
     if o.es_pressure == "measured":
         measured = get("es_pressure_measured_mmhg")
         esp = np.where(np.isnan(measured), sbp, measured)
-        flag(np.isnan(measured) & ~np.isnan(sbp), "es_pressure_from_cuff", "note",
-             "No measured end-systolic pressure: cuff systolic used instead.", "es_pressure_mmhg")
+        flag(
+            np.isnan(measured) & ~np.isnan(sbp),
+            "es_pressure_from_cuff",
+            "note",
+            "No measured end-systolic pressure: cuff systolic used instead.",
+            "es_pressure_mmhg",
+        )
     else:
         esp = stress.es_pressure_mmhg(sbp, dbp, method=o.es_pressure)
     out["es_pressure_mmhg"] = esp
-    used["es_pressure_mmhg"] = {"method": o.es_pressure, "readings": "mean of the cuff readings present"}
-    out["mess_kdyn_cm2"] = stress.meridional_es_stress_kdyn_cm2(esp, lvids, pws, constant=o.stress_constant)
+    used["es_pressure_mmhg"] = {
+        "method": o.es_pressure,
+        "readings": "mean of the cuff readings present",
+    }
+    out["mess_kdyn_cm2"] = stress.meridional_es_stress_kdyn_cm2(
+        esp, lvids, pws, constant=o.stress_constant
+    )
     cess = stress.circumferential_es_stress_kdyn_cm2(esp, lvids, pws, constant=o.stress_constant)
     out["cess_kdyn_cm2"] = cess
     used["mess_kdyn_cm2"] = used["cess_kdyn_cm2"] = {"constant": o.stress_constant}
@@ -212,12 +309,16 @@ def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataF
     # midwall shortening and its stress correction
     mfs = function.midwall_fs_pct(ivsd, lvidd, pwd, lvids)
     line = refset.coefficients("midwall_stress_line")
-    pred = function.predicted_from_line(cess, line["intercept_pct"].value, line["slope_pct_per_kdyn_cm2"].value)
+    pred = function.predicted_from_line(
+        cess, line["intercept_pct"].value, line["slope_pct_per_kdyn_cm2"].value
+    )
     out["midwall_fs_pct"] = mfs
     out["midwall_fs_predicted_pct"] = pred
     out["midwall_fs_stress_corrected_pct"] = function.stress_corrected_pct(mfs, pred)
-    used["midwall_fs_predicted_pct"] = {"line": {k: v.value for k, v in line.items()},
-                                        "verified": sorted({v.verified for v in line.values()})}
+    used["midwall_fs_predicted_pct"] = {
+        "line": {k: v.value for k, v in line.items()},
+        "verified": sorted({v.verified for v in line.values()}),
+    }
 
     et, hr = get("ejection_time_ms"), get("hr_bpm")
     out["vcf_circ_s"] = function.vcf_circ_s(fs, et)
@@ -229,18 +330,24 @@ def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataF
     sw = stress.stroke_work_g_m(sbp, sv)
     out["stroke_work_g_m"] = sw
     coef = refset.coefficients("mass_prediction")
-    male = np.where(sex == "M", True, np.where(sex == "F", False, np.nan)).astype(float)
+    male = np.where(masks["M"], 1.0, np.where(masks["F"], 0.0, np.nan))
     pred_lvm = function.predicted_lv_mass_g(height, sw, male, {k: v.value for k, v in coef.items()})
     out["lv_mass_predicted_g"] = pred_lvm
     appr = function.appropriateness_pct(lvm, pred_lvm)
     out["lv_mass_appropriateness_pct"] = appr
     limit = coef["inappropriate_above_pct"].value
     with np.errstate(invalid="ignore"):
-        flag(appr > limit, "inappropriate_lv_mass", "note",
-             f"LV mass is above {limit:g} % of the mass predicted from sex, height^2.7 and stroke work "
-             "(coefficients from memory: interpret with care).", "lv_mass_appropriateness_pct")
-    used["lv_mass_predicted_g"] = {"coefficients": {k: v.value for k, v in coef.items()},
-                                   "verified": sorted({v.verified for v in coef.values()})}
+        flag(
+            appr > limit,
+            "inappropriate_lv_mass",
+            "note",
+            f"LV mass is above {limit:g} % of the mass predicted from sex, height^2.7 and stroke work "
+            "(coefficients from memory: interpret with care).",
+            "lv_mass_appropriateness_pct",
+        )
+    used["lv_mass_predicted_g"] = {
+        "coefficients": {k: v.value for k, v in coef.items()},
+        "verified": sorted({v.verified for v in coef.values()}),
+    }
 
-    frame = pd.DataFrame(out, index=c.index)
-    return frame, fnd.concat(parts), used
+    return out, fnd.concat(parts, categorical=True), used

@@ -352,7 +352,10 @@ def infer_unit(field: str, values) -> InferredUnit:
 
     def distance(u: str) -> float:
         v = conv[u]
-        return 0.0 if lo <= v <= hi else min(abs(np.log(v / lo)), abs(np.log(v / hi)))
+        if lo <= v <= hi:
+            return 0.0
+        with np.errstate(divide="ignore"):  # a median that underflows to 0 is infinitely far
+            return min(abs(np.log(v / lo)), abs(np.log(v / hi)))
 
     u = min(cands, key=distance)
     return InferredUnit(

@@ -1,0 +1,184 @@
+"""Reading CSV text: encoding (UTF-8, BOM, UTF-16, Windows-1252), delimiter and decimal comma.
+
+References
+----------
+RFC 4180, Common Format and MIME Type for Comma-Separated Values (CSV) Files, 2005.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import re
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from wallstress import findings as fnd
+from wallstress.errors import InputError
+from wallstress.grid_in import (
+    HEADER_SEARCH_ROWS,
+    _blank_to_nan,
+    _cell_findings,
+    _file_note,
+    _frame_from_grid,
+)
+from wallstress.study_table import StudyTable
+
+DELIMITERS: tuple[str, ...] = ("\t", ";", "|", ",")  # order of preference when several fit
+
+
+def _decode(p: Path, data: bytes) -> tuple[str, str]:
+    if data.startswith(b"\xef\xbb\xbf"):
+        enc = "utf-8-sig"
+    elif data.startswith((b"\xff\xfe", b"\xfe\xff")):
+        enc = "utf-16"
+    else:
+        enc = "utf-8"
+    try:
+        text = data.decode(enc)
+    except UnicodeDecodeError:
+        if enc != "utf-8":
+            raise InputError(
+                f"{p}: the text is not valid {enc}; save it again as CSV UTF-8"
+            ) from None
+        try:
+            text = data.decode("cp1252")
+            enc = "cp1252"
+        except UnicodeDecodeError:
+            raise InputError(
+                f"{p}: not readable as UTF-8 or Windows-1252 text (binary content?); "
+                "save the study list as CSV UTF-8 or .xlsx"
+            ) from None
+    if "\x00" in text[:65536]:
+        raise InputError(
+            f"{p}: binary content (NUL bytes), not a text table; pass a CSV, .xlsx, .ods or .parquet file"
+        )
+    return text, enc
+
+
+_QUOTED = re.compile(r'"(?:[^"]|"")*"')
+
+
+def detect_delimiter(lines: list[str]) -> str:
+    """The field delimiter of CSV text: tab, ';', '|' or ',' (first that splits the lines evenly).
+
+    Quoted fields are ignored. A candidate fits when at least 80 % of the non-empty lines contain it
+    the same number of times (and at least once); several fitting candidates are taken in the order
+    of ``DELIMITERS`` (',' last, because it is also a decimal mark).
+    """
+    body = [_QUOTED.sub("", ln) for ln in lines if ln.strip()]
+    if not body:
+        return ","
+    best = None
+    for d in DELIMITERS:
+        counts = np.array([ln.count(d) for ln in body])
+        if counts.max() == 0:
+            continue
+        vals, freq = np.unique(counts[counts > 0], return_counts=True)
+        mode = vals[np.argmax(freq)]
+        share = float(np.mean(counts == mode))
+        if share >= 0.8:
+            return d
+        if best is None or share > best[1]:
+            best = (d, share)
+    return best[0] if best else ","
+
+
+def _read_csv(p: Path, data: bytes, max_rows, columns) -> StudyTable:
+    text, enc = _decode(p, data)
+    notes = []
+    if enc == "cp1252":
+        notes.append(
+            _file_note(
+                "encoding_cp1252",
+                "The file is not UTF-8; it was read as Windows-1252 (cp1252). Check accented names, or save it as CSV UTF-8.",
+            )
+        )
+    sample = text[:200_000].splitlines()[:200]
+    delim = detect_delimiter(sample)
+    nrows = None if max_rows is None else max_rows + HEADER_SEARCH_ROWS + 2
+    width = max((len(r) for r in csv.reader(sample, delimiter=delim)), default=1)
+    kw = dict(
+        sep=delim,
+        header=None,
+        dtype=str,
+        keep_default_na=False,
+        na_filter=False,
+        skip_blank_lines=False,
+        quotechar='"',
+        nrows=nrows,
+    )
+    try:
+        grid = pd.read_csv(io.StringIO(text), names=range(width), engine="c", **kw)
+    except (pd.errors.ParserError, ValueError):
+        width = max((len(r) for r in csv.reader(io.StringIO(text), delimiter=delim)), default=1)
+        try:
+            grid = pd.read_csv(io.StringIO(text), names=range(width), engine="python", **kw)
+        except (pd.errors.ParserError, ValueError, csv.Error) as exc:
+            raise InputError(
+                f"{p}: the CSV cannot be parsed ({exc}); check quotes and delimiters"
+            ) from exc
+    grid = _blank_to_nan(grid)
+    table, header_row, first, parts = _frame_from_grid(p, grid, columns, None, None)
+    if max_rows is not None:
+        table = table.iloc[:max_rows].reset_index(drop=True)
+    cell_parts = _cell_findings(table)  # before numbers: "#N/A" in a number column -> NaN
+    table, dec = _numbers_from_text(table, allow_comma=delim != ",")
+    parts = [*notes, *parts, *cell_parts]
+    if dec == ",":
+        parts.append(
+            _file_note(
+                "decimal_comma", "Numbers use a decimal comma; they were read as decimal numbers."
+            )
+        )
+    return StudyTable(
+        table=table,
+        path=p,
+        format="csv",
+        sheet=None,
+        header_row=header_row,
+        sha256="",
+        encoding=enc,
+        delimiter=delim,
+        decimal=dec,
+        findings=fnd.concat(parts),
+        first_data_row=first,
+    )
+
+
+_PLAIN_NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
+
+
+_COMMA_NUM = r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?"
+
+
+def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataFrame, str]:
+    """Columns whose every non-empty cell is a number become float64; others stay text."""
+    dec = "."
+    out = {}
+    for j, _c in enumerate(table.columns):
+        s = table.iloc[:, j]
+        t = s.astype("str").str.strip()
+        nonempty = s.notna()
+        if not nonempty.any():
+            out[j] = s
+            continue
+        tt = t[nonempty]
+        if tt.str.fullmatch(_PLAIN_NUM).all():
+            out[j] = t.where(nonempty).astype("float64")
+        elif (
+            allow_comma
+            and tt.str.fullmatch(_COMMA_NUM).all()
+            and not tt.str.contains(r"\d,\d{3}(?:[.,]|$)").all()
+        ):
+            out[j] = pd.to_numeric(
+                t.where(nonempty).str.replace(",", ".", regex=False), errors="coerce"
+            ).astype("float64")
+            dec = ","
+        else:
+            out[j] = s
+    res = pd.DataFrame(out)
+    res.columns = table.columns
+    return res, dec

@@ -1,0 +1,197 @@
+"""Checks on a study-list file before any parser sees it: what it is, and whether it is safe to open.
+
+The contents decide the format (zip package: xlsx or ods; ``PAR1``: parquet; otherwise text). Refused
+with one line saying why and what to do: legacy binary workbooks (.xls), password-protected
+(encrypted) workbooks, damaged or misnamed packages, zip containers beyond ``ZIP_LIMITS`` (entries,
+uncompressed sizes, compression ratio: zip bombs) and XML parts that declare a DOCTYPE or entity
+(entity-expansion attacks).
+
+References
+----------
+ECMA-376, Office Open XML File Formats, 5th ed., 2016.
+OASIS, Open Document Format for Office Applications (OpenDocument) v1.2, 2011.
+[MS-OFFCRYPTO], Office Document Cryptography Structure (encrypted OOXML is an OLE compound file
+holding ``EncryptionInfo`` and ``EncryptedPackage`` streams).
+"""
+
+from __future__ import annotations
+
+import io
+import re
+import zipfile
+from dataclasses import dataclass
+from pathlib import Path
+
+from wallstress.errors import InputError
+
+
+@dataclass(frozen=True)
+class ZipLimits:
+    """Limits a workbook's zip container must respect before it is parsed (zip-bomb guard)."""
+
+    max_entries: int = 10_000
+    max_entry_bytes: int = 2 * 1024**3  # uncompressed, per entry
+    max_total_bytes: int = 4 * 1024**3  # uncompressed, all entries
+    max_ratio: float = 200.0  # uncompressed / compressed, for entries over ratio_floor_bytes
+    ratio_floor_bytes: int = 1024**2
+
+
+ZIP_LIMITS = ZipLimits()
+
+
+_OLE_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
+
+
+_ENCRYPTED_MARK = "EncryptedPackage".encode("utf-16-le")
+
+
+def _sniff(p: Path, data: bytes) -> str:
+    suffix = p.suffix.lower()
+    head = data[:8]
+    if head.startswith(b"PK\x03\x04") or head.startswith(b"PK\x05\x06"):
+        return _zip_kind(p, data)
+    if head == _OLE_MAGIC:
+        if _ENCRYPTED_MARK in data:
+            raise InputError(
+                f"{p}: the workbook is password-protected (encrypted); open it, remove the password "
+                "and save an unprotected copy as .xlsx"
+            )
+        raise InputError(
+            f"{p}: this is a legacy binary workbook (.xls), which is not read; open it and save it "
+            "as .xlsx (or export CSV UTF-8)"
+        )
+    if head.startswith(b"PAR1"):
+        return "parquet"
+    if suffix in (".xlsx", ".xlsm", ".ods", ".xls", ".parquet"):
+        what = {".parquet": "a parquet file"}.get(suffix, "a workbook")
+        raise InputError(
+            f"{p}: the file is named {suffix} but is not {what} (its contents are not a "
+            f"{'parquet file' if suffix == '.parquet' else 'zip-packaged workbook'}); it may be damaged "
+            "or misnamed: export the study list again"
+        )
+    return "csv"
+
+
+def _zip_kind(p: Path, data: bytes) -> str:
+    try:
+        zf = zipfile.ZipFile(io.BytesIO(data))
+    except (zipfile.BadZipFile, ValueError, OSError) as exc:
+        raise InputError(
+            f"{p}: the workbook is damaged (not a readable zip package: {exc}); export it again"
+        ) from exc
+    with zf:
+        check_zip(p, zf)
+        names = set(zf.namelist())
+        if "mimetype" in names:
+            mt = zf.read("mimetype")[:100]
+            if b"opendocument.spreadsheet" in mt:
+                return "ods"
+            raise InputError(
+                f"{p}: an OpenDocument file that is not a spreadsheet ({mt.decode('ascii', 'replace')}); "
+                "save the study list as .ods or .xlsx"
+            )
+        if "xl/workbook.xml" in names or any(n.startswith("xl/") for n in names):
+            return "xlsx"
+        if any(n.startswith("word/") or n.startswith("ppt/") for n in names):
+            raise InputError(
+                f"{p}: this is a text document or slide file, not a workbook; save the study list as .xlsx"
+            )
+    raise InputError(
+        f"{p}: a zip archive that holds no workbook; pass the .xlsx, .ods or .csv file itself"
+    )
+
+
+def check_zip(p: Path, zf: zipfile.ZipFile, limits: ZipLimits = ZIP_LIMITS) -> None:
+    """Refuse a zip container that would expand beyond ``limits`` (checked on the directory only).
+
+    Raises
+    ------
+    InputError
+        Too many entries, an entry or the total too large when uncompressed, or a compression
+        ratio typical of a zip bomb.
+    """
+    infos = zf.infolist()
+    fix = "if the file is genuine, export a smaller study list (or CSV)"
+    if len(infos) > limits.max_entries:
+        raise InputError(
+            f"{p}: the workbook package has {len(infos)} parts (limit {limits.max_entries}); "
+            f"refused as a possible zip bomb; {fix}"
+        )
+    total = 0
+    for info in infos:
+        size = int(info.file_size)
+        total += size
+        if size > limits.max_entry_bytes:
+            raise InputError(
+                f"{p}: part {info.filename!r} expands to {size} bytes (limit "
+                f"{limits.max_entry_bytes}); refused as a possible zip bomb; {fix}"
+            )
+        if size > limits.ratio_floor_bytes:
+            ratio = size / max(int(info.compress_size), 1)
+            if ratio > limits.max_ratio:
+                raise InputError(
+                    f"{p}: part {info.filename!r} is compressed {ratio:.0f}:1 (limit "
+                    f"{limits.max_ratio:.0f}:1); refused as a possible zip bomb; {fix}"
+                )
+    if total > limits.max_total_bytes:
+        raise InputError(
+            f"{p}: the workbook expands to {total} bytes (limit {limits.max_total_bytes}); "
+            f"refused as a possible zip bomb; {fix}"
+        )
+
+
+_DTD_RE = re.compile(rb"<!\s*(DOCTYPE|ENTITY)", re.IGNORECASE)
+
+
+def check_xml_parts(p: Path, zf: zipfile.ZipFile, max_prolog_bytes: int = 1024**2) -> None:
+    """Refuse XML parts that declare a DOCTYPE or ENTITY (entity expansion, external entities).
+
+    A DOCTYPE may only stand in the prolog, before the root element, so each part is read only up
+    to its root element (at most ``max_prolog_bytes``). Workbooks written by spreadsheet programs
+    never declare one.
+    """
+    for info in zf.infolist():
+        name = info.filename
+        if not (name.endswith(".xml") or name.endswith(".rels") or name.endswith(".vml")):
+            continue
+        with zf.open(info) as fh:
+            buf = b""
+            while len(buf) < max_prolog_bytes:
+                chunk = fh.read(65536)
+                if not chunk:
+                    break
+                buf += chunk
+                if _root_started(buf):
+                    break
+        text = buf
+        if text.startswith((b"\xff\xfe", b"\xfe\xff")):
+            text = buf.decode("utf-16", "ignore").encode("utf-8")
+        if _DTD_RE.search(text[: _root_offset(text) or len(text)]) or (
+            not _root_started(text) and len(buf) >= max_prolog_bytes
+        ):
+            raise InputError(
+                f"{p}: part {name!r} declares a DOCTYPE/ENTITY (XML entity expansion); refused as "
+                "unsafe; open the file in a spreadsheet program and save a fresh copy"
+            )
+
+
+_ROOT_RE = re.compile(rb"<[A-Za-z_]")
+
+
+def _root_offset(buf: bytes) -> int | None:
+    # skip comments and processing instructions / declarations
+    pos = 0
+    while True:
+        m = _ROOT_RE.search(buf, pos)
+        if not m:
+            return None
+        start = m.start()
+        prefix = buf[:start]
+        if prefix.count(b"<!--") > prefix.count(b"-->"):
+            pos = start + 1
+            continue
+        return start
+
+
+def _root_started(buf: bytes) -> bool:
+    return _root_offset(buf) is not None

@@ -1,0 +1,268 @@
+"""From a grid of cells to a table under the user's own headers (shared by csv and workbook reading).
+
+Finds the header row among the first ``HEADER_SEARCH_ROWS`` rows, combines a group row above it
+("Diastole" over IVS/LVID/PW, merged or not), folds a row of units below it into the headers, makes
+repeated headers unique, and turns spreadsheet error values (``#N/A``, ``#DIV/0!``...) into empty cells
+with a finding. Cells over ``MAX_CELL_CHARS`` are kept, with a finding.
+
+References
+----------
+ECMA-376, Office Open XML File Formats, 5th ed., 2016 (error values; 32,767 characters per cell).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from wallstress import findings as fnd
+from wallstress import units
+from wallstress.errors import InputError
+from wallstress.mapping import check_columns_option, header_score
+
+HEADER_SEARCH_ROWS = 20
+
+
+MAX_CELL_CHARS = 32_767
+
+
+SPREADSHEET_ERRORS = frozenset(
+    {
+        "#DIV/0!",
+        "#N/A",
+        "#NAME?",
+        "#NULL!",
+        "#NUM!",
+        "#REF!",
+        "#VALUE!",
+        "#SPILL!",
+        "#CALC!",
+        "#GETTING_DATA",
+        "#FIELD!",
+        "#BLOCKED!",
+        "#CONNECT!",
+        "#BUSY!",
+        "#UNKNOWN!",
+        "#N/A!",
+    }
+)
+
+
+def _file_note(code: str, message: str, severity: str = "note") -> pd.DataFrame:
+    return fnd.make([-1], code=code, severity=severity, message=message)
+
+
+def _blank_to_nan(grid: pd.DataFrame, strip: bool = True) -> pd.DataFrame:
+    """Empty (or, with ``strip``, whitespace-only) text cells -> NaN."""
+    out = {}
+    for c in grid.columns:
+        s = grid[c]
+        if strip and pd.api.types.is_string_dtype(s.dtype) and s.dtype != object:
+            blank = s.isna().to_numpy() | s.str.strip().eq("").fillna(True).to_numpy(dtype=bool)
+            out[c] = s.where(~blank)  # keeps the vectorised ``str`` dtype
+            continue
+        s = s.astype(object)
+        if strip:
+            blank = s.isna().to_numpy() | s.astype("str").str.strip().eq("").to_numpy()
+        else:
+            blank = s.isna().to_numpy() | s.eq("").to_numpy()
+        out[c] = s.where(~blank, np.nan)
+    return pd.DataFrame(out, index=grid.index)
+
+
+def _cell_text(v) -> str:
+    if v is None or (isinstance(v, float) and np.isnan(v)):
+        return ""
+    if isinstance(v, float) and v.is_integer():
+        return str(int(v))
+    return str(v).strip()
+
+
+def _frame_from_grid(p: Path, grid: pd.DataFrame, columns, sheet: str | None, merged) -> tuple:
+    """Find the header row, fold a units row / group row, name columns, return the data table."""
+    where = f" of sheet {sheet!r}" if sheet else ""
+    grid = grid.reset_index(drop=True)
+    grid.columns = range(grid.shape[1])
+    # drop leading/trailing columns that are empty everywhere
+    filled = grid.notna().any(axis=0).to_numpy()
+    if not filled.any():
+        raise InputError(f"{p}: no data{where}: every cell is empty; export the study list again")
+    first_col, last_col = np.flatnonzero(filled)[[0, -1]]
+    grid = grid.iloc[:, first_col : last_col + 1]
+    grid.columns = range(grid.shape[1])
+    merged = [((r0, c0 - first_col), (r1, c1 - first_col)) for (r0, c0), (r1, c1) in (merged or [])]
+    # drop trailing empty rows
+    rows_filled = grid.notna().any(axis=1).to_numpy()
+    last_row = int(np.flatnonzero(rows_filled)[-1])
+    grid = grid.iloc[: last_row + 1]
+
+    head = grid.iloc[:HEADER_SEARCH_ROWS]
+    texts = [[_cell_text(v) for v in row] for row in head.itertuples(index=False, name=None)]
+    width = max(sum(1 for t in r if t) for r in texts)
+    need = min(3, width)
+    header_row = None
+    for i, row in enumerate(texts):
+        if sum(1 for t in row if t) >= need and header_score(row, columns) >= need:
+            header_row = i
+            break
+    if header_row is None:
+        best = max(range(len(texts)), key=lambda i: header_score(texts[i], columns))
+        raise InputError(
+            f"{p}: no recognisable header in the first {HEADER_SEARCH_ROWS} rows{where} (best row "
+            f"{best + 1} names {header_score(texts[best], columns)} known columns, at least {need} "
+            "needed, e.g. IVSd, LVIDd, PWd, height, weight); rename the headers (see `wallstress "
+            "template`) or map them with --columns"
+        )
+    parts = []
+    headers = list(texts[header_row])
+    data_start = header_row + 1
+
+    # a group row above ("Diastole" over IVS/LVID/PW)
+    if header_row > 0:
+        group = list(texts[header_row - 1])
+        for (r0, c0), (r1, c1) in merged:
+            if r0 <= header_row - 1 <= r1 and 0 <= c0 < len(group):
+                for c in range(c0 + 1, min(c1 + 1, len(group))):
+                    group[c] = group[c0]
+        if not merged:
+            last = ""
+            for c in range(len(group)):
+                last = group[c] or last
+                group[c] = last
+        combined, changed = _combine_group(headers, group, columns)
+        if changed:
+            headers = combined
+            parts.append(
+                _file_note(
+                    "header_two_rows",
+                    f"The header spans two rows (rows {header_row} and {header_row + 1}); {changed} column names were combined from both, e.g. {next(h for h in combined if h)!r}.",
+                )
+            )
+
+    # a units row below ("mm", "(cm)", "kg")
+    if data_start < len(grid):
+        below = [_cell_text(v) for v in grid.iloc[data_start]]
+        cells = [b for b in below if b]
+        if cells and all(units.normalise_unit(b.strip("()[]{} ")) for b in cells):
+            for c, b in enumerate(below):
+                if b and headers[c]:
+                    headers[c] = f"{headers[c]} ({b.strip('()[]{} ')})"
+            data_start += 1
+            parts.append(
+                _file_note(
+                    "units_row_folded",
+                    f"Row {header_row + 2} holds only units; they were added to the headers (e.g. {next(h for h, b in zip(headers, below, strict=False) if b and h)!r}).",
+                )
+            )
+
+    headers, dup = _unique_headers(headers)
+    for h in dup:
+        parts.append(
+            fnd.make(
+                [-1],
+                code="duplicate_header",
+                severity="warning",
+                column=h,
+                message=f"The header {h.rsplit(' (', 1)[0]!r} appears more than once; this copy was renamed {h!r}. Rename it if it is a different measurement.",
+            )
+        )
+    table = grid.iloc[data_start:].reset_index(drop=True)
+    table.columns = headers
+    if len(table) == 0:
+        parts.append(
+            _file_note(
+                "no_rows", f"The study list{where} has a header but no data rows.", "warning"
+            )
+        )
+    return table, header_row, data_start, parts
+
+
+def _combine_group(headers, group, columns):
+    from wallstress.mapping import match_header
+
+    cols = check_columns_option(columns) if columns else None
+    out = list(headers)
+    changed = 0
+    for c, (h, g) in enumerate(zip(headers, group, strict=False)):
+        if not h or not g or g == h:
+            continue
+        plain, _ = match_header(h, cols)
+        for cand in (f"{h} {g}", f"{g} {h}"):
+            f, _ = match_header(cand, cols)
+            if f and f != plain:
+                out[c] = cand
+                changed += 1
+                break
+    return out, changed
+
+
+def _unique_headers(headers):
+    seen: dict[str, int] = {}
+    out, dup = [], []
+    for c, h in enumerate(headers):
+        name = h or f"column_{c + 1}"
+        key = name.lower()
+        if key in seen:
+            seen[key] += 1
+            new = f"{name} ({seen[key]})"
+            while new.lower() in seen:
+                seen[key] += 1
+                new = f"{name} ({seen[key]})"
+            seen[new.lower()] = 1
+            out.append(new)
+            dup.append(new)
+        else:
+            seen[key] = 1
+            out.append(name)
+    return out, dup
+
+
+def _cell_findings(table: pd.DataFrame, error_cells=None) -> list:
+    """Spreadsheet error values -> NaN with a finding; over-long cells -> finding (kept)."""
+    parts = []
+    for j, col in enumerate(table.columns):
+        s = table.iloc[:, j]
+        if s.dtype != object and not pd.api.types.is_string_dtype(s.dtype):
+            continue
+        if s.dtype == object:
+            arr = s.to_numpy(dtype=object)
+            is_str = np.fromiter((type(x) is str for x in arr), dtype=bool, count=len(arr))
+            if not is_str.any():
+                continue
+            t = s.where(is_str).astype("str")
+        else:
+            t = s
+            is_str = t.notna().to_numpy()
+        t = t.str.strip()
+        err = np.zeros(len(s), dtype=bool)
+        hashes = t.str.startswith("#").fillna(False).to_numpy(dtype=bool)
+        if hashes.any():
+            err = t.str.upper().isin(SPREADSHEET_ERRORS).to_numpy(dtype=bool) & is_str
+        if err.any():
+            rows = np.flatnonzero(err)
+            parts.append(
+                fnd.make(
+                    rows,
+                    code="spreadsheet_error",
+                    severity="error",
+                    column=str(col),
+                    values=s.to_numpy(dtype=object)[rows],
+                    message=f"{col!r}: the cell holds a spreadsheet error value; it was read as empty. Fix the formula in the file.",
+                )
+            )
+            table.iloc[rows, j] = np.nan
+        long = (t.str.len().fillna(0).to_numpy() > MAX_CELL_CHARS) & is_str
+        if long.any():
+            rows = np.flatnonzero(long)
+            parts.append(
+                fnd.make(
+                    rows,
+                    code="cell_too_long",
+                    severity="warning",
+                    column=str(col),
+                    message=f"{col!r}: the cell holds more than {MAX_CELL_CHARS} characters, more than a spreadsheet cell can hold; it was kept but will be cut by spreadsheet programs.",
+                )
+            )
+    return parts
