@@ -7,6 +7,7 @@ RFC 4180, Common Format and MIME Type for Comma-Separated Values (CSV) Files, 20
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import io
 import re
@@ -17,6 +18,7 @@ import pandas as pd
 
 from wallstress import findings as fnd
 from wallstress.errors import InputError
+from wallstress.file_guards import READ_LIMIT_BYTES
 from wallstress.grid_in import (
     HEADER_SEARCH_ROWS,
     _blank_to_nan,
@@ -86,7 +88,25 @@ def detect_delimiter(lines: list[str]) -> str:
     return best[0] if best else ","
 
 
+@contextlib.contextmanager
+def _field_limit(limit: int = READ_LIMIT_BYTES):
+    """Python's csv module refuses fields over 131,072 characters by default; while a study list is
+    read, allow fields as long as the largest file read at all (``READ_LIMIT_BYTES``), then put the
+    process-wide setting back."""
+    old = csv.field_size_limit()
+    csv.field_size_limit(max(old, limit))
+    try:
+        yield
+    finally:
+        csv.field_size_limit(old)
+
+
 def _read_csv(p: Path, data: bytes, max_rows, columns) -> StudyTable:
+    with _field_limit():
+        return _read_csv_text(p, data, max_rows, columns)
+
+
+def _read_csv_text(p: Path, data: bytes, max_rows, columns) -> StudyTable:
     text, enc = _decode(p, data)
     notes = []
     if enc == "cp1252":

@@ -17,7 +17,9 @@ holding ``EncryptionInfo`` and ``EncryptedPackage`` streams).
 from __future__ import annotations
 
 import io
+import os
 import re
+import stat
 import zipfile
 from dataclasses import dataclass
 from pathlib import Path
@@ -37,6 +39,75 @@ class ZipLimits:
 
 
 ZIP_LIMITS = ZipLimits()
+
+
+READ_LIMIT_BYTES = 512 * 1024**2  # a whole study list read into memory at once
+
+
+def _size_text(n: int) -> str:
+    for unit, size in (("GiB", 1024**3), ("MiB", 1024**2), ("KiB", 1024)):
+        if n >= size:
+            return f"{n / size:.1f} {unit}"
+    return f"{n} bytes"
+
+
+def read_file_bytes(p: Path, limit: int = READ_LIMIT_BYTES) -> bytes:
+    """The bytes of a regular file of at most ``limit`` bytes, or an ``InputError`` saying why not.
+
+    Checked before anything is read: the path exists, is a regular file (after following
+    symlinks; a device such as ``/dev/zero``, a FIFO or a socket could block or never end) and its
+    size is within ``limit``. A file whose size grows past ``limit`` while it is read (or that
+    reports a wrong size) is refused too: at most ``limit + 1`` bytes are ever read.
+
+    Parameters
+    ----------
+    p : Path
+        The study-list file.
+    limit : int
+        Largest file read at once. [bytes]
+
+    Raises
+    ------
+    InputError
+        Missing, a folder, not a regular file, unreadable, or larger than ``limit``.
+    """
+    try:
+        st = os.stat(p)
+    except FileNotFoundError:
+        raise InputError(f"{p}: file not found; check the path and the file name") from None
+    except OSError as exc:
+        raise InputError(
+            f"{p}: cannot be read ({exc.strerror or exc}); check the path and its permissions"
+        ) from None
+    if stat.S_ISDIR(st.st_mode):
+        raise InputError(f"{p}: is a folder, not a file; pass the study list file itself")
+    if not stat.S_ISREG(st.st_mode):
+        what = (
+            "a FIFO (named pipe)"
+            if stat.S_ISFIFO(st.st_mode)
+            else "a socket"
+            if stat.S_ISSOCK(st.st_mode)
+            else "a device"
+        )
+        raise InputError(
+            f"{p}: is {what}, not a regular file; save the study list as a file and pass that"
+        )
+    too_big = (
+        f"{p}: the file is {{size}}, more than the {_size_text(limit)} read at once; for a CSV or "
+        "parquet study list use --chunk-rows (e.g. --chunk-rows 100000), or split the file"
+    )
+    if st.st_size > limit:
+        raise InputError(too_big.format(size=_size_text(st.st_size)))
+    try:
+        with open(p, "rb") as fh:
+            data = fh.read(limit + 1)
+    except OSError as exc:
+        raise InputError(
+            f"{p}: cannot be read ({exc.strerror or exc}); check its permissions"
+        ) from exc
+    if len(data) > limit:
+        raise InputError(too_big.format(size=f"over {_size_text(limit)}"))
+    return data
 
 
 _OLE_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"

@@ -28,7 +28,7 @@ ES_PRESSURE_CHOICES = (*stress.ES_PRESSURE_METHODS, "measured")
 # and count, and small). ``Analysis.findings`` hands them on as plain text while some consumers
 # (the report's tables, parquet findings files compared with the chunked path) still expect text;
 # set True once those convert Categoricals themselves (issue 7).
-CATEGORICAL_FINDINGS = False
+CATEGORICAL_FINDINGS = True
 
 
 def _check_options(o: Options) -> None:

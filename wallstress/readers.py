@@ -52,6 +52,7 @@ from .csv_in import (  # noqa: F401
     detect_delimiter,
 )
 from .file_guards import (  # noqa: F401
+    READ_LIMIT_BYTES,
     _DTD_RE,
     _ENCRYPTED_MARK,
     _OLE_MAGIC,
@@ -64,6 +65,7 @@ from .file_guards import (  # noqa: F401
     _zip_kind,
     check_xml_parts,
     check_zip,
+    read_file_bytes,
 )
 from .grid_in import (  # noqa: F401
     HEADER_SEARCH_ROWS,
@@ -123,16 +125,7 @@ def read_studies(
     if max_rows is not None and (not isinstance(max_rows, int) or max_rows < 0):
         raise InputError(f"max_rows={max_rows!r} is not valid; pass a whole number >= 0 or None")
     check_columns_option(columns)
-    if not p.exists():
-        raise InputError(f"{p}: file not found; check the path and the file name")
-    if p.is_dir():
-        raise InputError(f"{p}: is a folder, not a file; pass the study list file itself")
-    try:
-        data = p.read_bytes()
-    except OSError as exc:
-        raise InputError(
-            f"{p}: cannot be read ({exc.strerror or exc}); check its permissions"
-        ) from exc
+    data = read_file_bytes(p)
     if not data.strip():
         raise InputError(f"{p}: the file is empty; export the study list again with its header row")
     digest = hashlib.sha256(data).hexdigest()

@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 
 from . import figures as fig_mod
+from . import findings as fnd
 
 FALLBACK_LSC_G = 35.0  # Palmieri V et al., J Am Coll Cardiol 1999 (used only without a set)
 
@@ -86,7 +87,7 @@ def _findings(analysis) -> pd.DataFrame:
         return pd.DataFrame(
             columns=["row", "column", "field", "value", "severity", "code", "message"]
         )
-    f = f.copy()
+    f = fnd.as_text(f)
     for c in ("row", "column", "field", "value", "severity", "code", "message"):
         if c not in f.columns:
             f[c] = -1 if c == "row" else ""

@@ -275,7 +275,7 @@ def _check_suffix(out: Path) -> str:
 def _findings_for_writing(findings) -> pd.DataFrame:
     if findings is None:
         return _findings.empty()
-    return findings
+    return _findings.as_text(findings)
 
 
 def _slug(name: str) -> str:

@@ -1,0 +1,205 @@
+"""A sheet's extent, measured before any reader expands it, and a bounded read when it is too large.
+
+A workbook's cells are stored sparsely, but the fast reader (python-calamine) turns a sheet into a
+dense rectangle from A1 to the farthest cell: one stray cell at XFD1 and one at A1048576 ask for
+16384 x 1048576 = 1.7 x 10^10 cells and the process aborts without a message. So the sheet's XML is
+scanned first (streamed, never expanded) for the farthest cell:
+
+- xlsx: the ``r="B7"`` references of ``<c>`` cells and ``<row r="7">`` rows (regular expressions
+  on chunks of the streamed part; the ``<dimension>`` element is not trusted);
+- ods: ``table:number-rows-repeated`` and ``table:number-columns-repeated`` counted, not expanded,
+  over cells that hold a value (trailing empty repeats, common in files saved by spreadsheet
+  programs, do not count).
+
+When rows x columns exceeds ``SHEET_CELL_BUDGET``, the table is found among the populated cells
+(the block that starts at the first populated cell and ends at a gap of more than ``ROW_GAP`` empty
+rows or ``COL_GAP`` empty columns), only that block is read (openpyxl in read-only mode with
+``max_row``/``max_col`` for xlsx; a streamed parse for ods), and a file-level finding names the
+far-off cells that were left out. A block that is itself over the budget is refused with one line.
+
+References
+----------
+ECMA-376, Office Open XML File Formats, 5th ed., 2016, Part 1, 18.3.1.4 (``c``: ``r`` cell
+reference), 18.3.1.73 (``row``: ``r`` row index); sheet limits 1,048,576 rows x 16,384 columns.
+OASIS, Open Document Format for Office Applications (OpenDocument) v1.2, 2011, Part 1, 9.1.3
+(``table:number-rows-repeated``), 9.1.4 (``table:number-columns-repeated``).
+"""
+
+from __future__ import annotations
+
+import re
+import zipfile
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from wallstress.errors import InputError
+
+SHEET_CELL_BUDGET = 20_000_000  # rows x columns a sheet may span before the bounded read is used
+ROW_GAP = 10_000  # empty rows that end the table in a bounded read
+COL_GAP = 256  # empty columns that end the table in a bounded read
+_CHUNK = 1 << 22
+
+_REF_COL = re.compile(rb'\sr="([A-Z]{1,3})[0-9]')
+_REF_ROW = re.compile(rb'\sr="[A-Z]{0,3}([0-9]{1,8})"')
+_CELL_TAG = re.compile(rb'<c\s[^>]*?\br="([A-Z]{1,3})([0-9]{1,8})"[^>]*>')
+
+
+@dataclass(frozen=True)
+class Extent:
+    """How far a sheet reaches: ``n_rows`` x ``n_cols`` from A1 (1-based last row and column)."""
+
+    n_rows: int
+    n_cols: int
+
+    @property
+    def cells(self) -> int:
+        return self.n_rows * self.n_cols
+
+
+def col_letters(c: int) -> str:
+    """0-based column index -> spreadsheet letters (0 -> 'A', 16383 -> 'XFD')."""
+    out = ""
+    c += 1
+    while c:
+        c, r = divmod(c - 1, 26)
+        out = chr(65 + r) + out
+    return out
+
+
+def _col_number(letters: bytes) -> int:
+    n = 0
+    for ch in letters:
+        n = n * 26 + (ch - 64)
+    return n
+
+
+def _chunks(fh):
+    """Yield chunks of an XML stream that end just before a '<' (no tag is split)."""
+    tail = b""
+    while True:
+        chunk = fh.read(_CHUNK)
+        if not chunk:
+            if tail:
+                yield tail
+            return
+        buf = tail + chunk
+        cut = buf.rfind(b"<")
+        if cut <= 0:
+            tail = buf
+            continue
+        yield buf[:cut]
+        tail = buf[cut:]
+
+
+def xlsx_extent(zf: zipfile.ZipFile, part: str) -> Extent:
+    """The farthest row and column any cell or row of an xlsx sheet part names (streamed)."""
+    max_row = max_col = n_row_tags = 0
+    with zf.open(part) as fh:
+        for buf in _chunks(fh):
+            letters = set(_REF_COL.findall(buf))
+            if letters:
+                max_col = max(max_col, max(map(_col_number, letters)))
+            rows = _REF_ROW.findall(buf)
+            if rows:
+                max_row = max(max_row, max(map(int, rows)))
+            n_row_tags += buf.count(b"<row")
+    return Extent(max(max_row, n_row_tags), max_col)
+
+
+def _xlsx_cells(zf: zipfile.ZipFile, part: str) -> tuple[np.ndarray, np.ndarray]:
+    """0-based (rows, cols) of the xlsx cells that are not empty self-closing tags."""
+    rows, cols = [], []
+    with zf.open(part) as fh:
+        for buf in _chunks(fh):
+            for m in _CELL_TAG.finditer(buf):
+                if m.group(0).endswith(b"/>"):
+                    continue
+                cols.append(_col_number(m.group(1)) - 1)
+                rows.append(int(m.group(2)) - 1)
+    return np.asarray(rows, dtype=np.int64), np.asarray(cols, dtype=np.int64)
+
+
+def _block(starts: np.ndarray, lengths: np.ndarray, gap: int) -> tuple[int, int]:
+    """[lo, hi) of the run of intervals starting at the first one, broken by a gap > ``gap``."""
+    order = np.argsort(starts, kind="stable")
+    s, e = starts[order], starts[order] + lengths[order]
+    reach = np.maximum.accumulate(e)
+    breaks = np.flatnonzero(s[1:] > reach[:-1] + gap)
+    last = breaks[0] if breaks.size else len(s) - 1
+    return int(s[0]), int(reach[last])
+
+
+def find_block(r0, nr, c0, nc) -> tuple[int, int, int, int]:
+    """The table among populated runs of cells (0-based starts, lengths): row_lo, row_hi, col_lo,
+    col_hi (half-open). Columns first (over all runs), then rows (over runs inside the columns)."""
+    r0, nr, c0, nc = (np.asarray(a, dtype=np.int64) for a in (r0, nr, c0, nc))
+    col_lo, col_hi = _block(c0, nc, COL_GAP)
+    inside = (c0 < col_hi) & (c0 + nc > col_lo)
+    row_lo, row_hi = _block(r0[inside], nr[inside], ROW_GAP)
+    return row_lo, row_hi, col_lo, col_hi
+
+
+def _outside_refs(r0, nr, c0, nc, block, limit: int = 5) -> tuple[list[str], int]:
+    row_lo, row_hi, col_lo, col_hi = block
+    r0, nr, c0, nc = (np.asarray(a, dtype=np.int64) for a in (r0, nr, c0, nc))
+    out = (r0 >= row_hi) | (r0 + nr <= row_lo) | (c0 >= col_hi) | (c0 + nc <= col_lo)
+    idx = np.flatnonzero(out)
+    refs = [f"{col_letters(int(c0[i]))}{int(r0[i]) + 1}" for i in idx[:limit]]
+    return refs, int(idx.size)
+
+
+def stray_message(name: str, extent: Extent, refs: list[str], n_out: int, block) -> str:
+    """The file-level finding's text: which far-off cells, how large they make the sheet, and what
+    was read."""
+    row_lo, row_hi, col_lo, col_hi = block
+    more = f" and {n_out - len(refs)} more" if n_out > len(refs) else ""
+    cells = "cell" if n_out == 1 else "cells"
+    return (
+        f"Stray {cells} at {', '.join(refs)}{more} make sheet {name!r}'s range {extent.n_rows} x "
+        f"{extent.n_cols} cells; only the table under the header "
+        f"({col_letters(col_lo)}{row_lo + 1}:{col_letters(col_hi - 1)}{row_hi}) was read. Delete "
+        "the stray cells, or check that nothing outside that range belongs to the study list."
+    )
+
+
+def _too_large(p: Path, name: str, rows: int, cols: int) -> InputError:
+    return InputError(
+        f"{p}: sheet {name!r} holds a table of {rows} rows x {cols} columns, more than the "
+        f"{SHEET_CELL_BUDGET:,} cells read at once; export it as CSV and use --chunk-rows, or split it"
+    )
+
+
+def bounded_xlsx_grid(p: Path, zf: zipfile.ZipFile, part: str, name: str, extent: Extent, max_rows):
+    """Read only the table block of an over-large xlsx sheet; returns (grid, finding message).
+
+    The grid starts at A1 (so that row and column positions match the file) and ends at the
+    block's last row and column; openpyxl's read-only reader stops at ``max_row`` and fills no
+    column past ``max_col``.
+    """
+    rows, cols = _xlsx_cells(zf, part)
+    if rows.size == 0:
+        return pd.DataFrame(), None
+    ones = np.ones_like(rows)
+    block = find_block(rows, ones, cols, ones)
+    row_hi, col_hi = block[1], block[3]
+    if row_hi * col_hi > SHEET_CELL_BUDGET:
+        raise _too_large(p, name, block[1] - block[0], block[3] - block[2])
+    refs, n_out = _outside_refs(rows, ones, cols, ones, block)
+    if max_rows is not None:
+        from wallstress.grid_in import HEADER_SEARCH_ROWS
+
+        row_hi = min(row_hi, block[0] + max_rows + HEADER_SEARCH_ROWS + 2)
+    import openpyxl
+
+    wb = openpyxl.load_workbook(p, read_only=True, data_only=True)
+    try:
+        ws = wb[name]
+        grid_rows = list(ws.iter_rows(max_row=row_hi, max_col=col_hi, values_only=True))
+    finally:
+        wb.close()
+    grid = pd.DataFrame(grid_rows, dtype=object) if grid_rows else pd.DataFrame()
+    msg = stray_message(name, extent, refs, n_out, block) if n_out else None
+    return grid, msg
