@@ -15,12 +15,16 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from wallstress import findings as fnd
 from wallstress.errors import InputError
 from wallstress.file_guards import READ_LIMIT_BYTES
 from wallstress.grid_in import (
     HEADER_SEARCH_ROWS,
+    cell_mask,
+    text_cells,
     _blank_to_nan,
     _cell_findings,
     _file_note,
@@ -175,30 +179,52 @@ _COMMA_NUM = r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?"
 
 
 def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataFrame, str]:
-    """Columns whose every non-empty cell is a number become float64; others stay text."""
-    dec = "."
+    """Columns whose every non-empty cell is a number become float64; others stay text.
+
+    With ``allow_comma`` (delimiter not ','), a column of numbers written with a decimal comma is
+    read too, unless every cell looks like a thousands separator ("1,234"). All cells are checked
+    at once (:func:`wallstress.grid_in.text_cells`).
+    """
+    n, k = table.shape
+    if k == 0 or n == 0:
+        return table, "."
+    flat, is_text = text_cells(table)
+    shape = (n, k)
+    t = pc.utf8_trim_whitespace(flat)
+    nonempty = table.notna().to_numpy()
+    # columns that are not text at all (already numbers) are left alone
+    any_text = is_text.any(axis=0)
+    plain = cell_mask(pc.match_substring_regex(t, f"^(?:{_PLAIN_NUM})$"), shape)
+    is_plain = any_text & nonempty.any(axis=0) & (plain | ~nonempty).all(axis=0)
+    is_comma = np.zeros(k, dtype=bool)
+    if allow_comma:
+        cand = any_text & nonempty.any(axis=0) & ~is_plain
+        if cand.any():
+            comma = cell_mask(pc.match_substring_regex(t, f"^(?:{_COMMA_NUM})$"), shape)
+            thousands = cell_mask(pc.match_substring_regex(t, r"\d,\d{3}(?:[.,]|$)"), shape)
+            is_comma = (
+                cand
+                & (comma | ~nonempty).all(axis=0)
+                & ~(thousands | ~nonempty).all(axis=0)
+            )
+    convert = is_plain | is_comma
+    if not convert.any():
+        return table, "."
+    text = t
+    if is_comma.any():
+        text = pc.replace_substring(t, ",", ".")
+    cols = np.flatnonzero(convert)
+    pick = np.zeros(shape, dtype=bool)
+    pick[:, cols] = nonempty[:, cols]
+    values = np.full(shape, np.nan)
+    flat_pick = pick.ravel(order="F")
+    chosen = pc.filter(text, pa.array(flat_pick)).to_numpy(zero_copy_only=False)
+    vals_f = values.ravel(order="F").copy()
+    vals_f[flat_pick] = chosen.astype(np.float64)
+    values = vals_f.reshape(shape, order="F")
     out = {}
-    for j, _c in enumerate(table.columns):
-        s = table.iloc[:, j]
-        t = s.astype("str").str.strip()
-        nonempty = s.notna()
-        if not nonempty.any():
-            out[j] = s
-            continue
-        tt = t[nonempty]
-        if tt.str.fullmatch(_PLAIN_NUM).all():
-            out[j] = t.where(nonempty).astype("float64")
-        elif (
-            allow_comma
-            and tt.str.fullmatch(_COMMA_NUM).all()
-            and not tt.str.contains(r"\d,\d{3}(?:[.,]|$)").all()
-        ):
-            out[j] = pd.to_numeric(
-                t.where(nonempty).str.replace(",", ".", regex=False), errors="coerce"
-            ).astype("float64")
-            dec = ","
-        else:
-            out[j] = s
-    res = pd.DataFrame(out)
+    for j in range(k):
+        out[j] = values[:, j] if convert[j] else table.iloc[:, j]
+    res = pd.DataFrame(out, index=table.index)
     res.columns = table.columns
-    return res, dec
+    return res, ("," if is_comma.any() else ".")

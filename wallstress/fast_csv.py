@@ -28,6 +28,7 @@ Apache Arrow, pyarrow.csv.write_csv and WriteOptions (quoting_style), documentat
 
 from __future__ import annotations
 
+import contextlib
 import os
 
 import numpy as np
@@ -47,6 +48,7 @@ def write_csv(
     delimiter: str = ",",
     decimal: str = ".",
     encoding: str = "utf-8",
+    header: bool = True,
 ) -> None:
     """Write ``df`` (without its index) to ``path`` as CSV, every value at full precision.
 
@@ -54,14 +56,17 @@ def write_csv(
     ----------
     df : DataFrame
         The table; column names (as text) make the header line.
-    path : path-like
-        The file to write (the caller handles atomicity: pass a temporary path beside the target).
+    path : path-like or binary file
+        The file to write (the caller handles atomicity: pass a temporary path beside the target),
+        or a file opened in binary mode to append to (for a table written chunk by chunk).
     delimiter : str
         Field separator, one character (``","``, ``";"``, ``"\\t"``...).
     decimal : str
         Decimal mark of numbers (``"."`` or ``","``); must differ from ``delimiter``.
     encoding : str
         Text encoding; ``"utf-8"`` and ``"utf-8-sig"`` (with a byte order mark) take the fast path.
+    header : bool
+        Write the header line (and, for ``"utf-8-sig"``, the byte order mark) first.
 
     Raises
     ------
@@ -91,13 +96,25 @@ def write_csv(
         except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError, UnicodeError):
             table = None
         if table is not None:
-            options = pa_csv.WriteOptions(include_header=True, delimiter=delimiter)
-            with open(os.fspath(path), "wb") as fh:
-                if enc == "utf-8-sig":
+            options = pa_csv.WriteOptions(include_header=header, delimiter=delimiter)
+            with _binary(path) as fh:
+                if enc == "utf-8-sig" and header:
                     fh.write(_BOM)
                 pa_csv.write_csv(table, fh, write_options=options)
             return
-    _write_with_pandas(df, path, delimiter=delimiter, decimal=decimal, encoding=encoding)
+    _write_with_pandas(
+        df, path, delimiter=delimiter, decimal=decimal, encoding=encoding, header=header
+    )
+
+
+@contextlib.contextmanager
+def _binary(target):
+    """An open binary file: the one given (left open), or ``target`` opened for writing."""
+    if hasattr(target, "write"):
+        yield target
+    else:
+        with open(os.fspath(target), "wb") as fh:
+            yield fh
 
 
 def arrow_table(df: pd.DataFrame) -> pa.Table:
@@ -181,7 +198,7 @@ def _missing(v) -> bool:
     return isinstance(v, (np.datetime64, np.timedelta64)) and bool(np.isnat(v))
 
 
-def _write_with_pandas(df, path, *, delimiter, decimal, encoding) -> None:
+def _write_with_pandas(df, path, *, delimiter, decimal, encoding, header=True) -> None:
     """``to_csv`` with floats as shortest round-trip text (pandas would round them with a decimal mark)."""
     out = df
     float_cols = [j for j in range(df.shape[1]) if pd.api.types.is_float_dtype(df.iloc[:, j].dtype)]
@@ -194,7 +211,9 @@ def _write_with_pandas(df, path, *, delimiter, decimal, encoding) -> None:
             if decimal != ".":
                 text = pc.replace_substring(text, ".", decimal)
             out.isetitem(j, pd.Series(text.to_numpy(zero_copy_only=False), index=col.index))
-    out.to_csv(path, index=False, sep=delimiter, decimal=decimal, encoding=encoding)
+    if hasattr(path, "write") and encoding.lower().replace("_", "-") == "utf-8-sig" and not header:
+        encoding = "utf-8"  # appending: the byte order mark was written with the header
+    out.to_csv(path, index=False, sep=delimiter, decimal=decimal, encoding=encoding, header=header)
 
 
 __all__ = ["FAST_ENCODINGS", "arrow_table", "write_csv"]

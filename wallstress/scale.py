@@ -38,6 +38,7 @@ import pandas as pd
 from . import findings as fnd
 from . import readers, safety
 from .errors import InputError, OutputError
+from .fast_csv import write_csv
 from .options import Options
 from .pipeline import analyse, analyse_with_findings
 
@@ -580,17 +581,22 @@ class _Sink:
         self._n_row_findings += len(row_findings)
         if self.suffix == ".csv":
             if self._results is None:
-                self._results = open(self._out_tmp, "w", encoding=self.encoding, newline="")
-                self._rows = open(self._rows_tmp, "w", encoding="utf-8", newline="")
-            frame.to_csv(
+                self._results = open(self._out_tmp, "wb")  # noqa: SIM115 (closed by the batch)
+                self._rows = open(self._rows_tmp, "wb")  # noqa: SIM115
+            write_csv(
+                frame,
                 self._results,
-                index=False,
                 header=not self._header_done,
-                sep=self.delimiter,
+                delimiter=self.delimiter,
                 decimal=self.decimal,
+                encoding=self.encoding,
             )
-            row_findings.to_csv(
-                self._rows, index=False, header=False, sep=self.delimiter, decimal=self.decimal
+            write_csv(
+                fnd.as_text(row_findings),
+                self._rows,
+                header=False,
+                delimiter=self.delimiter,
+                decimal=self.decimal,
             )
         else:
             import pyarrow as pa

@@ -156,10 +156,10 @@ def stray_message(name: str, extent: Extent, refs: list[str], n_out: int, block)
     was read."""
     row_lo, row_hi, col_lo, col_hi = block
     more = f" and {n_out - len(refs)} more" if n_out > len(refs) else ""
-    cells = "cell" if n_out == 1 else "cells"
+    cells, verb = ("cell", "makes") if n_out == 1 else ("cells", "make")
     return (
-        f"Stray {cells} at {', '.join(refs)}{more} make sheet {name!r}'s range {extent.n_rows} x "
-        f"{extent.n_cols} cells; only the table under the header "
+        f"Stray {cells} at {', '.join(refs)}{more} {verb} the range of sheet {name!r} "
+        f"{extent.n_rows} x {extent.n_cols} cells; only the table under the header "
         f"({col_letters(col_lo)}{row_lo + 1}:{col_letters(col_hi - 1)}{row_hi}) was read. Delete "
         "the stray cells, or check that nothing outside that range belongs to the study list."
     )
@@ -203,3 +203,161 @@ def bounded_xlsx_grid(p: Path, zf: zipfile.ZipFile, part: str, name: str, extent
     grid = pd.DataFrame(grid_rows, dtype=object) if grid_rows else pd.DataFrame()
     msg = stray_message(name, extent, refs, n_out, block) if n_out else None
     return grid, msg
+
+
+_TABLE = "{urn:oasis:names:tc:opendocument:xmlns:table:1.0}"
+_OFFICE = "{urn:oasis:names:tc:opendocument:xmlns:office:1.0}"
+_TEXT = "{urn:oasis:names:tc:opendocument:xmlns:text:1.0}"
+_ODS_CELLS = (f"{_TABLE}table-cell", f"{_TABLE}covered-table-cell")
+
+
+def _ods_value(el):
+    kind = el.get(f"{_OFFICE}value-type")
+    if kind in ("float", "percentage", "currency"):
+        try:
+            return float(el.get(f"{_OFFICE}value", "nan"))
+        except ValueError:
+            return np.nan
+    if kind == "boolean":
+        return el.get(f"{_OFFICE}boolean-value", "").lower() == "true"
+    if kind == "date":
+        try:
+            return pd.Timestamp(el.get(f"{_OFFICE}date-value")).to_pydatetime()
+        except (ValueError, TypeError):
+            return el.get(f"{_OFFICE}date-value")
+    paras = ["".join(p.itertext()) for p in el.iter(f"{_TEXT}p")]
+    return "\n".join(paras) if paras else None
+
+
+def _ods_walk(zf: zipfile.ZipFile, name: str, bounds=None):
+    """Stream content.xml for sheet ``name``: populated runs (row, n_rows, col, n_cols) or, with
+    ``bounds`` = (n_rows, n_cols), the cells inside that rectangle as a list of rows."""
+    from defusedxml.ElementTree import iterparse
+
+    runs: list[tuple[int, int, int, int]] = []
+    grid: list[list] = []
+    in_table = False
+    row = col = 0
+    row_rep = 1
+    run_start = None
+    with zf.open("content.xml") as fh:
+        for event, el in iterparse(fh, events=("start", "end")):
+            tag = el.tag
+            if tag == f"{_TABLE}table":
+                if event == "start":
+                    in_table = el.get(f"{_TABLE}name") == name
+                    row = 0
+                elif in_table:
+                    break
+                continue
+            if not in_table:
+                continue
+            if tag == f"{_TABLE}table-row":
+                if event == "start":
+                    row_rep = int(el.get(f"{_TABLE}number-rows-repeated", "1") or 1)
+                    col, run_start = 0, None
+                    if bounds is not None:
+                        cur = [None] * bounds[1] if row < bounds[0] else None
+                else:
+                    if run_start is not None:
+                        runs.append((row, row_rep, run_start, col - run_start))
+                    if bounds is not None and row < bounds[0]:
+                        n = min(row_rep, bounds[0] - row)
+                        grid.extend(list(cur) for _ in range(n))
+                    row += row_rep
+                    el.clear()
+                continue
+            if tag in _ODS_CELLS and event == "end":
+                rep = int(el.get(f"{_TABLE}number-columns-repeated", "1") or 1)
+                filled = el.get(f"{_OFFICE}value-type") is not None or len(el) > 0
+                if filled:
+                    if run_start is None:
+                        run_start = col
+                    if bounds is not None and row < bounds[0] and col < bounds[1]:
+                        v = _ods_value(el)
+                        for c in range(col, min(col + rep, bounds[1])):
+                            cur[c] = v
+                elif run_start is not None:
+                    runs.append((row, row_rep, run_start, col - run_start))
+                    run_start = None
+                col += rep
+                el.clear()
+    return grid if bounds is not None else runs
+
+
+def ods_extent(zf: zipfile.ZipFile, name: str) -> tuple[Extent, np.ndarray]:
+    """How far sheet ``name`` of an ods reaches over cells that hold a value (repeats counted, not
+    expanded), and its populated runs as an (n, 4) array: row, n_rows, col, n_cols (0-based)."""
+    runs = np.asarray(_ods_walk(zf, name), dtype=np.int64).reshape(-1, 4)
+    if not len(runs):
+        return Extent(0, 0), runs
+    return Extent(int((runs[:, 0] + runs[:, 1]).max()), int((runs[:, 2] + runs[:, 3]).max())), runs
+
+
+def bounded_ods_grid(p: Path, zf: zipfile.ZipFile, name: str, extent: Extent, runs, max_rows):
+    """Read only the table block of an over-large ods sheet; returns (grid, finding message)."""
+    block = find_block(runs[:, 0], runs[:, 1], runs[:, 2], runs[:, 3])
+    row_hi, col_hi = block[1], block[3]
+    if row_hi * col_hi > SHEET_CELL_BUDGET:
+        raise _too_large(p, name, block[1] - block[0], block[3] - block[2])
+    refs, n_out = _outside_refs(runs[:, 0], runs[:, 1], runs[:, 2], runs[:, 3], block)
+    if max_rows is not None:
+        from wallstress.grid_in import HEADER_SEARCH_ROWS
+
+        row_hi = min(row_hi, block[0] + max_rows + HEADER_SEARCH_ROWS + 2)
+    rows = _ods_walk(zf, name, bounds=(row_hi, col_hi))
+    grid = pd.DataFrame(rows, dtype=object) if rows else pd.DataFrame()
+    msg = stray_message(name, extent, refs, n_out, block) if n_out else None
+    return grid, msg
+
+
+_REPEAT = re.compile(rb'number-(?:rows|columns)-repeated="([0-9]{1,10})"')
+
+
+def ods_may_exceed(zf: zipfile.ZipFile) -> bool:
+    """Cheap pre-check (regex on the streamed content.xml): False when no sheet can reach
+    ``SHEET_CELL_BUDGET`` cells even if every repeat were expanded, so the full walk is skipped.
+
+    Upper bound: (cell and row elements) x (largest repeat)^2.
+    """
+    elements = 0
+    largest = 1
+    with zf.open("content.xml") as fh:
+        for buf in _chunks(fh):
+            elements += buf.count(b"<table:table-cell") + buf.count(b"<table:table-row")
+            reps = _REPEAT.findall(buf)
+            if reps:
+                largest = max(largest, max(map(int, reps)))
+    return elements * largest * largest > SHEET_CELL_BUDGET
+
+
+def ods_sheet_names(zf: zipfile.ZipFile) -> list[str]:
+    """Names of the sheets of an ods, in order (streamed; no cell is expanded)."""
+    from defusedxml.ElementTree import iterparse
+
+    names = []
+    with zf.open("content.xml") as fh:
+        for event, el in iterparse(fh, events=("start", "end")):
+            if event == "start" and el.tag == f"{_TABLE}table":
+                names.append(el.get(f"{_TABLE}name", f"Sheet{len(names) + 1}"))
+            elif event == "end" and el.tag == f"{_TABLE}table-row":
+                el.clear()
+    return names
+
+
+def read_ods_sheet(p: Path, zf: zipfile.ZipFile, name: str, max_rows):
+    """An ods sheet read by the streamed parser (used when the fast reader would expand repeats
+    past its limits): the whole sheet when within ``SHEET_CELL_BUDGET``, else its table block.
+    Returns (grid, finding message or None)."""
+    extent, runs = ods_extent(zf, name)
+    if extent.cells == 0:
+        return pd.DataFrame(), None
+    if extent.cells > SHEET_CELL_BUDGET:
+        return bounded_ods_grid(p, zf, name, extent, runs, max_rows)
+    n_rows = extent.n_rows
+    if max_rows is not None:
+        from wallstress.grid_in import HEADER_SEARCH_ROWS
+
+        n_rows = min(n_rows, max_rows + HEADER_SEARCH_ROWS + 2 + int(runs[:, 0].min()))
+    rows = _ods_walk(zf, name, bounds=(n_rows, extent.n_cols))
+    return pd.DataFrame(rows, dtype=object), None

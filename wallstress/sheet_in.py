@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from wallstress import findings as fnd
+from wallstress import sheet_bounds as sb
 from wallstress.errors import InputError
 from wallstress.file_guards import check_xml_parts, check_zip
 from wallstress.grid_in import (
@@ -42,8 +43,14 @@ def _read_workbook(p: Path, kind: str, sheet, max_rows, columns) -> StudyTable:
 
     parts = []
     try:
-        wb = pc.CalamineWorkbook.from_path(str(p))
-        names = list(wb.sheet_names)
+        if kind == "ods" and _ods_repeats_large(p):
+            # calamine expands every sheet's repeated cells when it opens an ods
+            wb, names = None, _ods_names(p)
+        else:
+            wb = pc.CalamineWorkbook.from_path(str(p))
+            names = list(wb.sheet_names)
+    except InputError:
+        raise
     except Exception as exc:  # calamine raises its own error types
         if kind == "ods":
             raise InputError(
@@ -66,21 +73,24 @@ def _read_workbook(p: Path, kind: str, sheet, max_rows, columns) -> StudyTable:
     last_error = None
     for name in candidates:
         try:
-            grid, merged = _sheet_grid(p, wb, name, max_rows)
+            grid, merged, bound_note = _sheet_grid(p, wb, name, max_rows, kind)
         except InputError:
             raise
         except Exception as exc:
             if wb is None:
                 raise InputError(
-                    f"{p}: sheet {name!r} cannot be read ({exc}); save the workbook again"
+                    f"{p}: sheet {name!r} cannot be read ({type(exc).__name__}: {exc}); open the "
+                    "workbook in a spreadsheet program and save it again"
                 ) from exc
-            grid, merged = _openpyxl_grid(p, name, max_rows), []
+            grid, merged, bound_note = _openpyxl_grid(p, name, max_rows), [], None
             parts.append(
                 _file_note(
                     "read_with_openpyxl",
                     f"Sheet {name!r} was read with openpyxl (the fast reader failed: {type(exc).__name__}).",
                 )
             )
+        if bound_note:
+            parts.append(_file_note("stray_cells_ignored", bound_note, "warning"))
         if grid.empty or not grid.notna().to_numpy().any():
             last_error = InputError(
                 f"{p}: sheet {name!r} is empty; pass the sheet with the study list with --sheet"
@@ -124,9 +134,20 @@ def _read_workbook(p: Path, kind: str, sheet, max_rows, columns) -> StudyTable:
     raise last_error or InputError(f"{p}: the workbook has no sheets; export the study list again")
 
 
-def _sheet_grid(p: Path, wb, name: str, max_rows):
+def _sheet_grid(p: Path, wb, name: str, max_rows, kind: str = "xlsx"):
+    """(grid, merged ranges, note): the sheet's cells from A1, dense.
+
+    The sheet's extent is measured first (:mod:`wallstress.sheet_bounds`); a sheet that reaches
+    beyond ``SHEET_CELL_BUDGET`` cells is read bounded to its table, and the note names the far-off
+    cells left out. Otherwise calamine (or openpyxl, when ``wb`` is None) reads it whole.
+    """
+    if wb is None and kind == "ods":
+        return _guarded(p, name, lambda zf: sb.read_ods_sheet(p, zf, name, max_rows))
+    bounded = _bounded_grid(p, kind, name, max_rows)
+    if bounded is not None:
+        return bounded
     if wb is None:
-        return _openpyxl_grid(p, name, max_rows), []
+        return _openpyxl_grid(p, name, max_rows), [], None
     sh = wb.get_sheet_by_name(name)
     nrows = None if max_rows is None else max_rows + HEADER_SEARCH_ROWS + 2
     rows = (
@@ -136,9 +157,60 @@ def _sheet_grid(p: Path, wb, name: str, max_rows):
     )
     merged = list(getattr(sh, "merged_cell_ranges", None) or [])
     if not rows:
-        return pd.DataFrame(), merged
+        return pd.DataFrame(), merged, None
     grid = pd.DataFrame(rows, dtype=object)
-    return _blank_to_nan(grid, strip=False), merged
+    return _blank_to_nan(grid, strip=False), merged, None
+
+
+def _bounded_grid(p: Path, kind: str, name: str, max_rows):
+    """The bounded read of an over-large xlsx sheet, or None when it is within the budget."""
+
+    def read(zf):
+        part = _sheet_part(zf, name)
+        if part is None or part not in zf.namelist():
+            return None
+        extent = sb.xlsx_extent(zf, part)
+        if extent.cells <= sb.SHEET_CELL_BUDGET:
+            return None
+        return sb.bounded_xlsx_grid(p, zf, part, name, extent, max_rows)
+
+    return _guarded(p, name, read) if kind == "xlsx" else None
+
+
+def _guarded(p: Path, name: str, read):
+    """Run ``read(zipfile)``; damaged XML becomes one InputError line; (grid, note) -> (grid,
+    merged, note) with blank cells as NaN."""
+    from defusedxml.ElementTree import ParseError
+
+    try:
+        with zipfile.ZipFile(p) as zf:
+            got = read(zf)
+    except (ParseError, KeyError, ValueError, zipfile.BadZipFile) as exc:
+        raise InputError(
+            f"{p}: sheet {name!r} is damaged ({type(exc).__name__}: {exc}); open the workbook in a "
+            "spreadsheet program and save it again"
+        ) from exc
+    if got is None:
+        return None
+    grid, note = got
+    return (grid if grid.empty else _blank_to_nan(grid, strip=False)), [], note
+
+
+def _ods_repeats_large(p: Path) -> bool:
+    with zipfile.ZipFile(p) as zf:
+        return "content.xml" in zf.namelist() and sb.ods_may_exceed(zf)
+
+
+def _ods_names(p: Path) -> list[str]:
+    from defusedxml.ElementTree import ParseError
+
+    try:
+        with zipfile.ZipFile(p) as zf:
+            return sb.ods_sheet_names(zf)
+    except (ParseError, KeyError, ValueError) as exc:
+        raise InputError(
+            f"{p}: the spreadsheet is damaged ({type(exc).__name__}: {exc}); save it again as .ods"
+        ) from exc
 
 
 def _openpyxl_sheet_names(p: Path) -> list[str]:
@@ -157,6 +229,18 @@ def _openpyxl_sheet_names(p: Path) -> list[str]:
 
 
 def _openpyxl_grid(p: Path, name: str, max_rows) -> pd.DataFrame:
+    try:
+        return _openpyxl_rows(p, name, max_rows)
+    except InputError:
+        raise
+    except Exception as exc:  # openpyxl and XML parser errors of many types
+        raise InputError(
+            f"{p}: sheet {name!r} cannot be read ({type(exc).__name__}: {exc}); open the workbook "
+            "in a spreadsheet program and save it again"
+        ) from exc
+
+
+def _openpyxl_rows(p: Path, name: str, max_rows) -> pd.DataFrame:
     import openpyxl
 
     wb = openpyxl.load_workbook(p, read_only=True, data_only=True)
