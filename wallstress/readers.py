@@ -52,11 +52,11 @@ from .csv_in import (  # noqa: F401
     detect_delimiter,
 )
 from .file_guards import (  # noqa: F401
-    READ_LIMIT_BYTES,
     _DTD_RE,
     _ENCRYPTED_MARK,
     _OLE_MAGIC,
     _ROOT_RE,
+    READ_LIMIT_BYTES,
     ZIP_LIMITS,
     ZipLimits,
     _root_offset,
