@@ -457,7 +457,9 @@ def odd_dates_xlsx(folder: Path) -> Path:
 
 def odd_dates_csv(folder: Path) -> Path:
     rows = [[*GOOD_ROWS[0], "0000-00-00"], [*GOOD_ROWS[1], "2958466"]]
-    return _write(folder, "odd_dates.csv", _csv_text(header=[*GOOD_HEADER, "study_date"], rows=rows))
+    return _write(
+        folder, "odd_dates.csv", _csv_text(header=[*GOOD_HEADER, "study_date"], rows=rows)
+    )
 
 
 def gzip_named_csv(folder: Path) -> Path:
@@ -534,3 +536,39 @@ def shared_strings_xlsx(folder: Path, n: int = 1_000_000) -> Path:
                 zout.writestr(info, data)
         zout.writestr("xl/sharedStrings.xml", sst)
     return p
+
+
+CORPUS += [
+    ("stray_cells_xlsx", stray_cells_xlsx, "finding", "stray_cells_ignored"),
+    ("stray_cells_ods", stray_cells_ods, "finding", "stray_cells_ignored"),
+    (
+        "repeated_values_ods",
+        repeated_values_ods,
+        "error",
+        r"repeated\.ods: sheet 'Studies' holds a table of 1000003 rows x 16000 columns",
+    ),
+    ("huge_cell_csv", huge_cell_csv, "finding", "cell_too_long"),
+    ("nul_middle_csv", nul_middle_csv, "error", r"binary content \(NUL bytes\)"),
+    ("bom_only_csv", bom_only_csv, "error", r"bom_only\.csv: .*(empty|no data)"),
+    (
+        "empty_sheet_part_xlsx",
+        empty_sheet_part_xlsx,
+        "error",
+        r"empty_part\.xlsx: sheet 'Studies' cannot be read .*save it again",
+    ),
+    ("repeated_header_csv", repeated_header_csv, "finding", "header_repeated"),
+    ("many_sheets_xlsx", many_sheets_xlsx, "finding", "sheet_chosen"),
+    ("gzip_named_csv", gzip_named_csv, "error", r"zipped\.csv: not readable as UTF-8"),
+    ("dev_zero_link", dev_zero_link, "error", r"studies\.csv: is a device, not a regular file"),
+    ("fifo_csv", fifo_csv, "error", r"pipe\.csv: is a FIFO \(named pipe\)"),
+    ("folder_named_xlsx", folder_named_xlsx, "error", r"x\.xlsx: is a folder"),
+    ("sparse_2g_csv", sparse_2g_csv, "error", r"sparse\.csv: the file is 2\.0 GiB, more than"),
+    ("big_text_csv", big_text_csv, "error", r"big\.csv: the file is 2\.0 GiB, .*--chunk-rows"),
+]
+
+# through the command line: (maker, expected exit code, regex on the one line printed)
+CLI_CASES: list[tuple[str, object, int, str]] = [
+    (name, maker, 0 if expect == "finding" else 1, "" if expect == "finding" else detail)
+    for name, maker, expect, detail in CORPUS
+    if name not in ("missing", "uncalculated_formula")
+]

@@ -181,3 +181,149 @@ def test_fuzz_csv_text(tmp_path, text, encoding):
         return
     assert st_.findings["row"].between(-1, max(len(st_.table) - 1, -1)).all()
     assert len(set(st_.table.columns)) == st_.table.shape[1]
+
+
+# ---- round 2 (issue 8) ---------------------------------------------------------------------
+
+import csv  # noqa: E402
+
+import numpy as np  # noqa: E402
+
+from wallstress import sheet_bounds  # noqa: E402
+from wallstress.errors import OutputError  # noqa: E402
+from wallstress.readers import check_fits_xlsx, read_file_bytes  # noqa: E402
+
+
+def test_stray_cells_extent_and_message(tmp_path):
+    """ECMA-376 sheet limits (1,048,576 rows x 16,384 columns, last column XFD): the scan finds
+    the far corner without expanding it; only the table under the header is read."""
+    p = bad_inputs.stray_cells_xlsx(tmp_path)
+    with zipfile.ZipFile(p) as zf:
+        ext = sheet_bounds.xlsx_extent(zf, "xl/worksheets/sheet1.xml")
+    assert (ext.n_rows, ext.n_cols) == (1_048_576, 16_384)
+    st = read_studies(p)
+    assert st.table.shape == (200, 7)
+    assert st.table["study_id"].iloc[-1] == "D199"
+    msg = st.findings.loc[st.findings["code"] == "stray_cells_ignored", "message"].iloc[0]
+    assert "XFD1, A1048576" in msg and "1048576 x 16384" in msg and "A1:G201" in msg
+
+
+def test_col_letters():
+    """Column letters: A=1 ... Z=26, AA=27, XFD=16,384 (ECMA-376 cell references)."""
+    assert [sheet_bounds.col_letters(i) for i in (0, 25, 26, 701, 702, 16383)] == [
+        "A",
+        "Z",
+        "AA",
+        "ZZ",
+        "AAA",
+        "XFD",
+    ]
+
+
+@pytest.mark.parametrize("kind", ["xlsx", "ods"])
+def test_bounded_read_equals_fast_read(tmp_path, monkeypatch, kind):
+    """The bounded reader (a stray cell 300 columns away, budget lowered) gives the same table as
+    python-calamine (reference library) on the same sheet without the stray cell: text, numbers,
+    dates and empty cells. (calamine gives date-only cells as dates, openpyxl as datetimes.)"""
+    import datetime as dt
+
+    df = pd.DataFrame(
+        {
+            "study_id": ["A1", "A2", "A3"],
+            "study_date": [dt.datetime(2020, 1, 2), dt.datetime(2021, 3, 4), None],
+            "IVSd (mm)": [9.0, np.nan, 11.5],
+            "LVIDd (mm)": [47.0, 52.0, 50.0],
+            "PWd (mm)": [9.0, 10.0, 9.5],
+            "note": ["x y", None, "é"],
+        }
+    )
+    engine = "odf" if kind == "ods" else "openpyxl"
+    plain, stray = tmp_path / f"plain.{kind}", tmp_path / f"stray.{kind}"
+    df.to_excel(plain, index=False, sheet_name="Studies", engine=engine)
+    with pd.ExcelWriter(stray, engine=engine) as xw:
+        df.to_excel(xw, index=False, sheet_name="Studies")
+        pd.DataFrame({"far": ["x"]}).to_excel(xw, index=False, sheet_name="Studies", startcol=300)
+    fast = read_studies(plain)
+    monkeypatch.setattr(sheet_bounds, "SHEET_CELL_BUDGET", 100)  # 2 x 301 > 100 >= 4 x 6
+    if kind == "ods":
+        monkeypatch.setattr(sheet_bounds, "ods_may_exceed", lambda zf: True)
+    bounded = read_studies(stray)
+    assert "stray_cells_ignored" in set(bounded.findings["code"])
+    left, right = fast.table.copy(), bounded.table.copy()
+    for t in (left, right):
+        t["study_date"] = pd.to_datetime(t["study_date"]).astype("datetime64[us]")
+    pd.testing.assert_frame_equal(left, right)
+
+
+def test_huge_csv_cell_kept(tmp_path):
+    """Python csv module: default field_size_limit is 131,072 (Python docs, csv module); a 50 MB
+    cell is read whole, flagged as over the 32,767-character cell limit (ECMA-376), and the
+    process-wide csv limit is restored."""
+    before = csv.field_size_limit()
+    st = read_studies(bad_inputs.huge_cell_csv(tmp_path))
+    assert csv.field_size_limit() == before
+    assert len(st.table.loc[1, "comment"]) == 50 * 1024**2
+    f = st.findings[st.findings["code"] == "cell_too_long"]
+    assert list(f["row"]) == [1]
+
+
+def test_wide_csv_reads_every_column(tmp_path):
+    """50 rows x 20,004 columns: every column named and numeric columns read as float64 (RFC 4180;
+    the header row longer than any fixed sample). Speed is measured in benchmarks, not here."""
+    st = read_studies(bad_inputs.wide_csv(tmp_path))
+    assert st.table.shape == (50, 20_004)
+    assert st.table.columns[0] == "study_id" and st.table.columns[-1] == "extra_19999"
+    assert st.table["extra_19999"].dtype == np.float64
+    assert st.table["extra_19999"].iloc[0] == 19_999 % 97
+
+
+def test_check_fits_xlsx():
+    """Excel sheet limits: 1,048,576 rows (one for the header) and 16,384 columns (Microsoft,
+    'Excel specifications and limits'; common practice)."""
+    check_fits_xlsx(1000, 100)
+    with pytest.raises(OutputError, match=r"out\.xlsx: .*20004 of the study list.*\.csv"):
+        check_fits_xlsx(50, 20_004, "out.xlsx")
+    with pytest.raises(OutputError, match="rows"):
+        check_fits_xlsx(1_048_576, 10)
+
+
+def test_read_file_bytes_limit(tmp_path):
+    """A file over the stated size limit is refused before it is read. Common practice, no source."""
+    p = tmp_path / "s.csv"
+    p.write_bytes(b"x" * 2000)
+    assert read_file_bytes(p, limit=2000) == b"x" * 2000
+    with pytest.raises(InputError, match=r"s\.csv: the file is 2\.0 KiB, more than the 1000 bytes"):
+        read_file_bytes(p, limit=1000)
+
+
+def test_odd_numbers_stay_text(tmp_path):
+    """Number-like text that is not a plain decimal number ('∞', '1.2.3', Arabic-Indic digits)
+    keeps its column as text, cell for cell, for the mapping step to judge. Common practice, no
+    source."""
+    st = read_studies(bad_inputs.odd_numbers_csv(tmp_path))
+    assert list(st.table["LVIDd (mm)"]) == bad_inputs.ODD_NUMBERS[:3] + [
+        "NaN",
+        *bad_inputs.ODD_NUMBERS[4:],
+    ]
+
+
+def test_unicode_sheet_name(tmp_path):
+    """A 31-character sheet name (the xlsx maximum) with quotes and accents reads by name."""
+    p = bad_inputs.unicode_sheet_xlsx(tmp_path)
+    st = read_studies(p, sheet=bad_inputs.UNICODE_SHEET)
+    assert st.sheet == bad_inputs.UNICODE_SHEET and len(st.table) == 2
+
+
+def test_shared_strings_many(tmp_path):
+    """10^6 unused shared strings do not stop a two-row sheet from being read (ECMA-376 sst)."""
+    st = read_studies(bad_inputs.shared_strings_xlsx(tmp_path))
+    assert list(st.table["study_id"]) == ["D001", "D002"]
+
+
+def test_odd_dates_kept(tmp_path):
+    """'0000-00-00' stays text and serial 2958466 (after 9999-12-31, the last Excel date) stays a
+    number: the reader does not invent dates (ECMA-376 date serials)."""
+    st = read_studies(bad_inputs.odd_dates_xlsx(tmp_path))
+    col = st.table["study_date"]
+    assert col.iloc[0] == "0000-00-00"
+    assert float(col.iloc[1]) == 2958466

@@ -10,6 +10,7 @@ from __future__ import annotations
 import contextlib
 import csv
 import io
+import itertools
 import re
 from pathlib import Path
 
@@ -17,18 +18,19 @@ import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
+from pandas.api.types import is_object_dtype
 
 from wallstress import findings as fnd
 from wallstress.errors import InputError
 from wallstress.file_guards import READ_LIMIT_BYTES
 from wallstress.grid_in import (
     HEADER_SEARCH_ROWS,
-    cell_mask,
-    text_cells,
     _blank_to_nan,
     _cell_findings,
     _file_note,
     _frame_from_grid,
+    cell_mask,
+    text_cells,
 )
 from wallstress.study_table import StudyTable
 
@@ -64,7 +66,7 @@ def _decode(p: Path, data: bytes) -> tuple[str, str]:
     return text, enc
 
 
-_QUOTED = re.compile(r'"(?:[^"]|"")*"')
+_QUOTED = re.compile(r'"[^"]*(?:""[^"]*)*"')  # unrolled: no backtracking state per character
 
 
 def detect_delimiter(lines: list[str]) -> str:
@@ -120,14 +122,19 @@ def _read_csv_text(p: Path, data: bytes, max_rows, columns) -> StudyTable:
                 "The file is not UTF-8; it was read as Windows-1252 (cp1252). Check accented names, or save it as CSV UTF-8.",
             )
         )
-    sample = text[:200_000].splitlines()[:200]
+    # whole lines (however long): a cut first line would give too few column names, and pandas
+    # then takes the surplus leading fields of the header as an index
+    sample = [ln.rstrip("\r\n") for ln in itertools.islice(io.StringIO(text, newline=None), 200)]
     delim = detect_delimiter(sample)
     nrows = None if max_rows is None else max_rows + HEADER_SEARCH_ROWS + 2
-    width = max((len(r) for r in csv.reader(sample, delimiter=delim)), default=1)
+    try:
+        width = max((len(r) for r in csv.reader(sample, delimiter=delim)), default=1)
+    except csv.Error:
+        width = max((ln.count(delim) + 1 for ln in sample), default=1)
     kw = dict(
         sep=delim,
         header=None,
-        dtype=str,
+        dtype=object,
         keep_default_na=False,
         na_filter=False,
         skip_blank_lines=False,
@@ -202,11 +209,7 @@ def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataF
         if cand.any():
             comma = cell_mask(pc.match_substring_regex(t, f"^(?:{_COMMA_NUM})$"), shape)
             thousands = cell_mask(pc.match_substring_regex(t, r"\d,\d{3}(?:[.,]|$)"), shape)
-            is_comma = (
-                cand
-                & (comma | ~nonempty).all(axis=0)
-                & ~(thousands | ~nonempty).all(axis=0)
-            )
+            is_comma = cand & (comma | ~nonempty).all(axis=0) & ~(thousands | ~nonempty).all(axis=0)
     convert = is_plain | is_comma
     if not convert.any():
         return table, "."
@@ -222,9 +225,21 @@ def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataF
     vals_f = values.ravel(order="F").copy()
     vals_f[flat_pick] = chosen.astype(np.float64)
     values = vals_f.reshape(shape, order="F")
+    return _assemble(table, values, convert), ("," if is_comma.any() else ".")
+
+
+def _assemble(table: pd.DataFrame, values: np.ndarray, convert: np.ndarray) -> pd.DataFrame:
+    """Converted columns from ``values`` (float64), the others as they were (text keeps its dtype)."""
+    single_object = all(is_object_dtype(dt) for dt in table.dtypes)
+    arr = table.to_numpy(dtype=object) if single_object else None
     out = {}
-    for j in range(k):
-        out[j] = values[:, j] if convert[j] else table.iloc[:, j]
+    for j in range(table.shape[1]):
+        if convert[j]:
+            out[j] = values[:, j]
+        elif arr is not None:
+            out[j] = arr[:, j]
+        else:
+            out[j] = table.iloc[:, j]
     res = pd.DataFrame(out, index=table.index)
     res.columns = table.columns
-    return res, ("," if is_comma.any() else ".")
+    return res

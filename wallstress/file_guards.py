@@ -51,25 +51,14 @@ def _size_text(n: int) -> str:
     return f"{n} bytes"
 
 
-def read_file_bytes(p: Path, limit: int = READ_LIMIT_BYTES) -> bytes:
-    """The bytes of a regular file of at most ``limit`` bytes, or an ``InputError`` saying why not.
-
-    Checked before anything is read: the path exists, is a regular file (after following
-    symlinks; a device such as ``/dev/zero``, a FIFO or a socket could block or never end) and its
-    size is within ``limit``. A file whose size grows past ``limit`` while it is read (or that
-    reports a wrong size) is refused too: at most ``limit + 1`` bytes are ever read.
-
-    Parameters
-    ----------
-    p : Path
-        The study-list file.
-    limit : int
-        Largest file read at once. [bytes]
+def check_regular_file(p: Path) -> os.stat_result:
+    """The file's ``os.stat`` after checking that it exists and is a regular file (symlinks are
+    followed; a folder, device, FIFO or socket is refused with one line). Nothing is opened.
 
     Raises
     ------
     InputError
-        Missing, a folder, not a regular file, unreadable, or larger than ``limit``.
+        Missing, unreadable, a folder, or not a regular file.
     """
     try:
         st = os.stat(p)
@@ -92,6 +81,30 @@ def read_file_bytes(p: Path, limit: int = READ_LIMIT_BYTES) -> bytes:
         raise InputError(
             f"{p}: is {what}, not a regular file; save the study list as a file and pass that"
         )
+    return st
+
+
+def read_file_bytes(p: Path, limit: int = READ_LIMIT_BYTES) -> bytes:
+    """The bytes of a regular file of at most ``limit`` bytes, or an ``InputError`` saying why not.
+
+    Checked before anything is read: the path exists, is a regular file (after following
+    symlinks; a device such as ``/dev/zero``, a FIFO or a socket could block or never end) and its
+    size is within ``limit``. A file whose size grows past ``limit`` while it is read (or that
+    reports a wrong size) is refused too: at most ``limit + 1`` bytes are ever read.
+
+    Parameters
+    ----------
+    p : Path
+        The study-list file.
+    limit : int
+        Largest file read at once. [bytes]
+
+    Raises
+    ------
+    InputError
+        Missing, a folder, not a regular file, unreadable, or larger than ``limit``.
+    """
+    st = check_regular_file(p)
     too_big = (
         f"{p}: the file is {{size}}, more than the {_size_text(limit)} read at once; for a CSV or "
         "parquet study list use --chunk-rows (e.g. --chunk-rows 100000), or split the file"

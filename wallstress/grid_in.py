@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
+from pandas.api.types import is_object_dtype
 
 from wallstress import findings as fnd
 from wallstress import units
@@ -59,6 +60,11 @@ def _file_note(code: str, message: str, severity: str = "note") -> pd.DataFrame:
     return fnd.make([-1], code=code, severity=severity, message=message)
 
 
+def _str_mask(values: np.ndarray) -> np.ndarray:
+    """Which cells of an object array are text (str, including numpy's str)."""
+    return np.fromiter(map(str.__instancecheck__, values), dtype=bool, count=values.size)
+
+
 def text_cells(frame: pd.DataFrame) -> tuple[pa.ChunkedArray, np.ndarray]:
     """Every cell of ``frame`` that holds text, column after column, as one Arrow string array
     (null where the cell is not text), and the (rows, columns) mask of text cells.
@@ -69,9 +75,9 @@ def text_cells(frame: pd.DataFrame) -> tuple[pa.ChunkedArray, np.ndarray]:
     column was checked on its own).
     """
     n, k = frame.shape
-    if k and all(dt == object for dt in frame.dtypes):
+    if k and all(is_object_dtype(dt) for dt in frame.dtypes):
         flat = frame.to_numpy(dtype=object).ravel(order="F")
-        is_str = np.fromiter(map(type, flat), dtype=object, count=flat.size) == str
+        is_str = _str_mask(flat)
         arr = pa.array(np.where(is_str, flat, None), type=pa.large_string())
         return pa.chunked_array([arr], type=pa.large_string()), is_str.reshape((n, k), order="F")
     chunks = []
@@ -79,7 +85,7 @@ def text_cells(frame: pd.DataFrame) -> tuple[pa.ChunkedArray, np.ndarray]:
         s = frame.iloc[:, j]
         if s.dtype == object:
             vals = s.to_numpy(dtype=object)
-            is_str = np.fromiter(map(type, vals), dtype=object, count=n) == str
+            is_str = _str_mask(vals)
             chunks.append(pa.array(np.where(is_str, vals, None), type=pa.large_string()))
         elif pd.api.types.is_string_dtype(s.dtype):
             chunks.append(pa.array(s.array).cast(pa.large_string()))
@@ -106,12 +112,12 @@ def _blank_to_nan(grid: pd.DataFrame, strip: bool = True) -> pd.DataFrame:
     if strip:
         flat = pc.utf8_trim_whitespace(flat)
     blank = cell_mask(pc.equal(flat, ""), grid.shape) | grid.isna().to_numpy()
-    if all(dt == object for dt in grid.dtypes):
+    if all(is_object_dtype(dt) for dt in grid.dtypes):
         arr = grid.to_numpy(dtype=object)
         if blank.any():
             arr = arr.copy()
             arr[blank] = np.nan
-        return pd.DataFrame(arr, index=grid.index, columns=grid.columns)
+        return pd.DataFrame(arr, index=grid.index, columns=grid.columns, dtype=object)
     out = {}
     hit = blank.any(axis=0)
     for j, c in enumerate(grid.columns):
@@ -223,6 +229,7 @@ def _frame_from_grid(p: Path, grid: pd.DataFrame, columns, sheet: str | None, me
         )
     table = grid.iloc[data_start:].reset_index(drop=True)
     table.columns = headers
+    parts += _repeated_header_rows(table, texts[header_row])
     if len(table) == 0:
         parts.append(
             _file_note(
@@ -230,6 +237,35 @@ def _frame_from_grid(p: Path, grid: pd.DataFrame, columns, sheet: str | None, me
             )
         )
     return table, header_row, data_start, parts
+
+
+def _repeated_header_rows(table: pd.DataFrame, header_texts: list[str]) -> list:
+    """Data rows that repeat the header row (study lists joined end to end): a row finding each.
+
+    The rows are kept (every input row comes out once); their cells are text where numbers are
+    expected, so they are not computed. A row counts as a repeat when at least 3 cells, and at
+    least 80 % of the named header cells, equal the header text in the same column.
+    """
+    named = np.array([bool(h) for h in header_texts])
+    if len(table) == 0 or named.sum() < 3:
+        return []
+    want = np.array(header_texts, dtype=object)
+    flat, is_text = text_cells(table)
+    header_flat = pa.array(np.repeat(want, len(table)), type=pa.large_string())
+    same = cell_mask(pc.equal(pc.utf8_trim_whitespace(flat), header_flat), table.shape) & named
+    hits = same.sum(axis=1)
+    rows = np.flatnonzero((hits >= 3) & (hits >= 0.8 * named.sum()))
+    if not rows.size:
+        return []
+    return [
+        fnd.make(
+            rows,
+            code="header_repeated",
+            severity="warning",
+            message="This row repeats the header row (study lists joined end to end?); it was kept "
+            "but holds no measurements. Delete the repeated header rows.",
+        )
+    ]
 
 
 def _combine_group(headers, group, columns):
@@ -277,7 +313,7 @@ def _cell_findings(table: pd.DataFrame, error_cells=None) -> list:
     text_cols = [
         j
         for j, dt in enumerate(table.dtypes)
-        if dt == object or pd.api.types.is_string_dtype(dt)
+        if is_object_dtype(dt) or pd.api.types.is_string_dtype(dt)
     ]
     if not text_cols or len(table) == 0:
         return []

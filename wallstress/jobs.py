@@ -12,7 +12,7 @@ from .errors import InputError, OutputError
 from .options import Options
 from .pipeline import analyse_with_findings
 from .progress import Progress
-from .readers import read_studies
+from .readers import check_fits_xlsx, read_studies
 from .result import Analysis
 
 
@@ -88,6 +88,8 @@ def analyse_file(
 
     with Progress(4, enabled=None if not quiet else False) as bar:
         study = read_studies(path, sheet=options.sheet, columns=options.columns)
+        if out_path.suffix.lower() in (".xlsx", ".xlsm"):
+            check_fits_xlsx(*study.table.shape, out_path)  # refuse before computing, not after
         bar.step(f"read {len(study.table)} rows")
         analysis = analyse_with_findings(study.table, options, prior_findings=study.findings)
         _source_methods(analysis, study)

@@ -11,11 +11,18 @@ within ``ZIP_LIMITS`` (entries, uncompressed sizes, compression ratio) and no XM
 DOCTYPE or entity (entity-expansion attacks). openpyxl, the fallback reader, additionally parses
 through defusedxml when it is installed (it is a dependency).
 
+Before anything is read, the path must be a regular file (a device such as ``/dev/zero``, a FIFO or
+a socket is refused: it could block or never end) of at most ``READ_LIMIT_BYTES`` (larger CSV and
+parquet files go through ``--chunk-rows``). A sheet whose cells reach far beyond its table (a stray
+cell at XFD1048576) is measured before the fast reader expands it, and read bounded to its table
+(:mod:`wallstress.sheet_bounds`). ``check_fits_xlsx`` refuses, before any computing, a study list
+whose results cannot fit an xlsx sheet.
+
 A file with a header and no data rows is not an error: it returns 0 rows with a ``no_rows`` finding.
 
 This module dispatches by format and reads parquet; the rest lives in :mod:`wallstress.file_guards`
 (format sniffing, zip and XML checks), :mod:`wallstress.csv_in` (encoding, delimiter, decimal comma),
-:mod:`wallstress.sheet_in` (xlsx/ods sheets), :mod:`wallstress.grid_in` (header row, units row,
+:mod:`wallstress.sheet_in` (xlsx/ods sheets), :mod:`wallstress.sheet_bounds` (sheet extent and bounded reads), :mod:`wallstress.grid_in` (header row, units row,
 cell findings) and :mod:`wallstress.study_table` (:class:`StudyTable`). Their names stay importable
 from here.
 
@@ -37,7 +44,7 @@ from pathlib import Path
 import pandas as pd
 
 from wallstress import findings as fnd
-from wallstress.errors import InputError
+from wallstress.errors import InputError, OutputError
 from wallstress.mapping import check_columns_option, header_score
 
 # moved to modules of their own; re-exported so that ``from wallstress.readers import ...`` keeps working
@@ -63,6 +70,7 @@ from .file_guards import (  # noqa: F401
     _root_started,
     _sniff,
     _zip_kind,
+    check_regular_file,
     check_xml_parts,
     check_zip,
     read_file_bytes,
@@ -119,7 +127,8 @@ def read_studies(
     Raises
     ------
     InputError
-        The file cannot be used; one line naming the file, the problem and the fix.
+        The file cannot be used (missing, a folder, not a regular file, over ``READ_LIMIT_BYTES``,
+        damaged, unsafe, no recognisable header...); one line naming the file, the problem and the fix.
     """
     p = Path(path)
     if max_rows is not None and (not isinstance(max_rows, int) or max_rows < 0):
@@ -149,6 +158,39 @@ def read_studies(
     st.sha256 = digest
     st.findings = fnd.concat([*notes, st.findings])
     return st
+
+
+def check_fits_xlsx(n_rows: int, n_cols: int, out=None) -> None:
+    """Refuse, before any computing, a study list whose results cannot fit one xlsx sheet.
+
+    The results sheet holds the user's ``n_cols`` columns plus ``len(schema.OUTPUT_COLUMNS)``
+    columns of results, under one header row.
+
+    Parameters
+    ----------
+    n_rows, n_cols : int
+        Size of the study list as read (``StudyTable.table.shape``).
+    out : str or Path, optional
+        The output file, named in the message.
+
+    Raises
+    ------
+    OutputError
+        More than ``writers.EXCEL_MAX_ROWS - 1`` rows or ``writers.EXCEL_MAX_COLUMNS`` columns;
+        the message says to write .csv or .parquet instead.
+    """
+    from wallstress.schema import OUTPUT_COLUMNS
+    from wallstress.writers import EXCEL_MAX_COLUMNS, EXCEL_MAX_ROWS
+
+    total = int(n_cols) + len(OUTPUT_COLUMNS)
+    if int(n_rows) + 1 > EXCEL_MAX_ROWS or total > EXCEL_MAX_COLUMNS:
+        where = f"{out}: " if out is not None else ""
+        raise OutputError(
+            f"{where}the results would be {n_rows} rows x {total} columns ({n_cols} of the study "
+            f"list, {len(OUTPUT_COLUMNS)} of results), more than an xlsx sheet holds "
+            f"({EXCEL_MAX_ROWS - 1} rows, {EXCEL_MAX_COLUMNS} columns); write to a .csv or "
+            ".parquet output instead (-o results.csv)"
+        )
 
 
 def _read_parquet(p: Path, max_rows, columns) -> StudyTable:

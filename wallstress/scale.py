@@ -39,6 +39,7 @@ from . import findings as fnd
 from . import readers, safety
 from .errors import InputError, OutputError
 from .fast_csv import write_csv
+from .file_guards import check_regular_file
 from .options import Options
 from .pipeline import analyse, analyse_with_findings
 
@@ -143,8 +144,7 @@ def analyse_chunked(
         )
     chunk_rows = int(chunk_rows)
     src = Path(path)
-    if not src.is_file():
-        raise InputError(f"{src}: file not found; check the path and the file name")
+    check_regular_file(src)  # a folder, device or FIFO is refused before anything is read
     kind = _input_kind(src)
     out = Path(out_path) if out_path is not None else src.with_name(f"{src.stem}.wallstress.{kind}")
     suffix = out.suffix.lower()
