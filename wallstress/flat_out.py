@@ -71,37 +71,54 @@ def _to_csv(frame, tmp, source, escape_formulas) -> None:
     write_csv(frame, tmp, delimiter=delimiter, decimal=decimal, encoding=encoding)
 
 
-def _to_parquet(frame, tmp, sheet, report) -> None:
-    frame = frame.copy()
+PARQUET_OBJECT_KINDS = (
+    "string",
+    "empty",
+    "floating",
+    "integer",
+    "boolean",
+    "mixed-integer-float",
+    "date",
+    "datetime",
+    "decimal",
+    "bytes",
+)
+"""Kinds of object column (``pandas.api.types.infer_dtype``) that parquet stores as they are."""
+
+
+def parquet_ready(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[str]]:
+    """``frame`` as parquet can store it, and what was changed: repeated column names numbered,
+    object columns of mixed values written as text. The input is not modified."""
     cols = [str(c) for c in frame.columns]
-    if len(set(cols)) != len(cols):
+    mixed = [
+        j
+        for j in range(frame.shape[1])
+        if frame.iloc[:, j].dtype == object
+        and pd.api.types.infer_dtype(frame.iloc[:, j], skipna=True) not in PARQUET_OBJECT_KINDS
+    ]
+    repeated = len(set(cols)) != len(cols)
+    if not repeated and not mixed and cols == list(frame.columns):
+        return frame, []
+    notes = []
+    frame = frame.copy()
+    if repeated:
         seen: dict[str, int] = {}
         unique = []
         for c in cols:
             seen[c] = seen.get(c, 0) + 1
             unique.append(c if seen[c] == 1 else f"{c} ({seen[c]})")
-        report.notes.append(f"{sheet!r}: repeated column names numbered for parquet")
+        notes.append("repeated column names numbered for parquet")
         cols = unique
     frame.columns = cols
-    for c in cols:
-        if frame[c].dtype == object:
-            kind = pd.api.types.infer_dtype(frame[c], skipna=True)
-            if kind not in (
-                "string",
-                "empty",
-                "floating",
-                "integer",
-                "boolean",
-                "mixed-integer-float",
-                "date",
-                "datetime",
-                "decimal",
-                "bytes",
-            ):
-                frame[c] = frame[c].map(lambda v: None if _is_missing(v) else str(v))
-                report.notes.append(
-                    f"{sheet!r}: column {c!r} holds mixed values; written as text in parquet"
-                )
+    for j in mixed:
+        frame.isetitem(j, frame.iloc[:, j].map(lambda v: None if _is_missing(v) else str(v)))
+        notes.append(f"column {cols[j]!r} holds mixed values; written as text in parquet")
+    return frame, notes
+
+
+def _to_parquet(frame, tmp, sheet, report) -> None:
+    frame, notes = parquet_ready(frame)
+    report.notes.extend(f"{sheet!r}: {n}" for n in notes)
     try:
         frame.to_parquet(tmp, index=False)
     except ImportError as exc:

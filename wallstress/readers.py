@@ -236,16 +236,7 @@ def _read_parquet(p: Path, max_rows, columns) -> StudyTable:
         )
     uniq, dup = _unique_headers(headers)
     df.columns = uniq
-    parts = [
-        fnd.make(
-            [-1],
-            code="duplicate_header",
-            severity="warning",
-            column=h,
-            message=f"A column name appears more than once; this copy was renamed {h!r}.",
-        )
-        for h in dup
-    ]
+    parts = _duplicate_header_findings(dup)
     if len(df) == 0:
         parts.append(
             _file_note("no_rows", "The study list has column names but no data rows.", "warning")
@@ -261,3 +252,17 @@ def _read_parquet(p: Path, max_rows, columns) -> StudyTable:
         findings=fnd.concat(parts),
         first_data_row=1,
     )
+
+
+def _duplicate_header_findings(renamed) -> list:
+    """One file-level warning per header copy that was renamed to make the names unique."""
+    return [
+        fnd.make(
+            [-1],
+            code="duplicate_header",
+            severity="warning",
+            column=h,
+            message=f"A column name appears more than once; this copy was renamed {h!r}.",
+        )
+        for h in renamed
+    ]

@@ -369,16 +369,7 @@ def _parquet_chunks(p: Path, chunk_rows: int, columns: dict | None = None):
             "ivsd_cm, lvidd_cm, pwd_cm, height_cm, weight_kg); rename them or map them with --columns"
         )
     uniq, dup = readers._unique_headers(headers)
-    parts = [
-        fnd.make(
-            [-1],
-            code="duplicate_header",
-            severity="warning",
-            column=h,
-            message=f"A column name appears more than once; this copy was renamed {h!r}.",
-        )
-        for h in dup
-    ]
+    parts = readers._duplicate_header_findings(dup)
     if pf.metadata.num_rows == 0:
         parts.append(
             fnd.make(
@@ -700,42 +691,9 @@ def _no_null_types(schema):
 
 def _parquet_ready(frame: pd.DataFrame) -> pd.DataFrame:
     """As the in-memory parquet writer: numbered repeated names, mixed object columns as text."""
-    from .writers import _is_missing
+    from .flat_out import parquet_ready
 
-    cols = [str(c) for c in frame.columns]
-    if len(set(cols)) != len(cols) or any(
-        frame[c].dtype == object
-        and pd.api.types.infer_dtype(frame[c], skipna=True) not in _PARQUET_OBJECT_KINDS
-        for c in frame.columns
-    ):
-        frame = frame.copy()
-        seen: dict[str, int] = {}
-        unique = []
-        for c in cols:
-            seen[c] = seen.get(c, 0) + 1
-            unique.append(c if seen[c] == 1 else f"{c} ({seen[c]})")
-        frame.columns = unique
-        for c in unique:
-            if (
-                frame[c].dtype == object
-                and pd.api.types.infer_dtype(frame[c], skipna=True) not in _PARQUET_OBJECT_KINDS
-            ):
-                frame[c] = frame[c].map(lambda v: None if _is_missing(v) else str(v))
-    return frame
-
-
-_PARQUET_OBJECT_KINDS = (
-    "string",
-    "empty",
-    "floating",
-    "integer",
-    "boolean",
-    "mixed-integer-float",
-    "date",
-    "datetime",
-    "decimal",
-    "bytes",
-)
+    return parquet_ready(frame)[0]
 
 
 __all__ = [
