@@ -24,11 +24,8 @@ LINEAR_METHODS = mass.LINEAR_MASS_METHODS
 AREA_METHODS = mass.AREA_MASS_METHODS
 ES_PRESSURE_CHOICES = (*stress.ES_PRESSURE_METHODS, "measured")
 
-# The findings are built as Categoricals (few distinct texts over many rows: fast to merge, sort
-# and count, and small). ``Analysis.findings`` hands them on as plain text while some consumers
-# (the report's tables, parquet findings files compared with the chunked path) still expect text;
-# set True once those convert Categoricals themselves (issue 7).
-CATEGORICAL_FINDINGS = True
+# Findings are built and handed out as Categoricals: their text columns repeat a few strings per
+# rule, so codes are far smaller and faster to merge; writers and the report turn them into text.
 
 
 def _check_options(o: Options) -> None:
@@ -89,8 +86,6 @@ def analyse_with_findings(
     del out
     table = _append(df, outputs)
     methods = build_methods(options, refset, used, mapped, findings, len(df), version=__version__)
-    if not CATEGORICAL_FINDINGS:
-        findings = fnd.as_text(findings)
     return Analysis(
         table=table, canonical=canonical, outputs=outputs, findings=findings, methods=methods
     )
@@ -124,11 +119,7 @@ def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataF
     ``used`` records which formula and which coefficients each measure came from (for methods).
     """
     out, found, used = _compute_columns(c, o, refset)
-    return (
-        pd.DataFrame(out, index=c.index),
-        found if CATEGORICAL_FINDINGS else fnd.as_text(found),
-        used,
-    )
+    return pd.DataFrame(out, index=c.index), found, used
 
 
 def _text(codes, names):
