@@ -123,7 +123,7 @@ def _to_parquet(frame, tmp, sheet, report) -> None:
         frame.to_parquet(tmp, index=False)
     except ImportError as exc:
         raise OutputError(
-            "writing .parquet needs pyarrow (pip install 'wallstress[parquet]'); or write .csv/.xlsx"
+            "writing .parquet needs pyarrow (pip install pyarrow); or write .csv/.xlsx"
         ) from exc
 
 
