@@ -113,21 +113,16 @@ def _append(df: pd.DataFrame, outputs: pd.DataFrame) -> pd.DataFrame:
     return pd.concat([df, renamed], axis=1)
 
 
-def compute(c: pd.DataFrame, o: Options, refset) -> tuple[pd.DataFrame, pd.DataFrame, dict]:
-    """All measures from a validated canonical table (vectorised). Returns (outputs, findings, used).
-
-    ``used`` records which formula and which coefficients each measure came from (for methods).
-    """
-    out, found, used = _compute_columns(c, o, refset)
-    return pd.DataFrame(out, index=c.index), found, used
-
-
 def _text(codes, names):
     return fnd.text_from_codes(codes, names)
 
 
 def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, pd.DataFrame, dict]:
-    """:func:`compute` as a dict of columns (text columns built from codes, not object arrays)."""
+    """All measures from a validated canonical table, vectorised: (columns, findings, used).
+
+    Columns come as a dict (text columns built from codes, not object arrays); ``used`` records
+    which formula and which coefficients each measure came from, for the methods record.
+    """
     n = len(c)
 
     def get(name):

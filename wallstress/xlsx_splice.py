@@ -62,6 +62,8 @@ import pyarrow.compute as pc
 from defusedxml import ElementTree as SafeET
 
 from .errors import OutputError
+from .fast_csv import _missing
+from .sheet_bounds import col_letters
 
 EXCEL_MAX_ROWS = 1_048_576
 EXCEL_MAX_COLUMNS = 16_384
@@ -937,14 +939,6 @@ def _clean_texts(texts: list, notes, where: str, what: str) -> list:
     return out
 
 
-def _missing(v) -> bool:
-    if v is None or v is pd.NA or v is pd.NaT:
-        return True
-    if isinstance(v, (float, np.floating)):
-        return bool(np.isnan(v))
-    return isinstance(v, (np.datetime64, np.timedelta64)) and bool(np.isnat(v))
-
-
 def _mixed(values, header, where, date1904, notes) -> _Column:
     """An object column of mixed values: each value by its own type (a Python pass, off the hot path)."""
     n = len(values)
@@ -995,16 +989,6 @@ def _mixed(values, header, where, date1904, notes) -> _Column:
     if has_date:
         col.date_format = DATETIME_FORMAT if (kinds == _DATETIME).any() else DATE_FORMAT
     return col
-
-
-def _column_letters(j: int) -> str:
-    """0-based column index -> ``A``, ``B``, ... ``XFD``."""
-    s = ""
-    j += 1
-    while j:
-        j, r = divmod(j - 1, 26)
-        s = chr(65 + r) + s
-    return s
 
 
 def _affixes(col: _Column, style_ids: dict[str, int]) -> tuple[pa.Array, pa.Array]:
@@ -1079,7 +1063,7 @@ def _write_buffer(fh, arr: pa.Array) -> None:
 def _write_sheet(fh, plan: _Plan, style_ids: dict[str, int]) -> None:
     cols = plan.columns
     n_cols, n_rows = len(cols), plan.n_rows
-    last = f"{_column_letters(n_cols - 1)}{n_rows + 1}" if n_cols else "A1"
+    last = f"{col_letters(n_cols - 1)}{n_rows + 1}" if n_cols else "A1"
     head = [
         '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n',
         f'<worksheet xmlns="{MAIN_NS}" xmlns:r="{REL_NS}">',
@@ -1103,7 +1087,7 @@ def _write_sheet(fh, plan: _Plan, style_ids: dict[str, int]) -> None:
     if n_cols:
         head.append('<row r="1">')
         head.extend(
-            f'<c r="{_column_letters(j)}1" s="{style_ids["header"]}" t="inlineStr">{_T_OPEN}'
+            f'<c r="{col_letters(j)}1" s="{style_ids["header"]}" t="inlineStr">{_T_OPEN}'
             f"{_escape_py(c.header)}{_T_CLOSE}"
             for j, c in enumerate(cols)
         )
@@ -1111,7 +1095,7 @@ def _write_sheet(fh, plan: _Plan, style_ids: dict[str, int]) -> None:
     fh.write("".join(head).encode("utf-8"))
 
     if n_cols:
-        letters = [f'<c r="{_column_letters(j)}' for j in range(n_cols)]
+        letters = [f'<c r="{col_letters(j)}' for j in range(n_cols)]
         affixes = [_affixes(c, style_ids) for c in cols]
         for a in range(0, n_rows, _CHUNK_ROWS):
             b = min(a + _CHUNK_ROWS, n_rows)
