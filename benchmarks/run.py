@@ -125,6 +125,187 @@ def bare_measures(df: pd.DataFrame) -> pd.DataFrame:
     return pd.concat([df, out], axis=1)
 
 
+def _constants() -> dict:
+    """The default set's cut-offs and the bundled model coefficients, as plain numbers (read once,
+    outside the timed part, so the baseline carries no table lookups)."""
+    from wallstress.references import load_set, model_coefficients
+
+    ref = load_set("ase_eacvi_2015")
+    cut = {}
+    for measure in ("lvmi_bsa_g_m2", "rwt", "edv_index_ml_m2"):
+        for sex in ("F", "M"):
+            c = ref.cutoff(measure, sex)
+            assert c.comparison == ">", (measure, sex, c.comparison)
+            cut[measure, sex] = c.value
+    grades = {}
+    for measure in ("lvmi_bsa_g_m2", "rwt", "lvidd_cm", "ivsd_cm", "pwd_cm"):
+        for sex in ("F", "M"):
+            grades[measure, sex] = [
+                (c.grade, c.comparison, c.value) for c in ref.grades(measure, sex)
+            ]
+    coef = {k: v.value for k, v in model_coefficients("mass_prediction").items()}
+    line = {k: v.value for k, v in model_coefficients("midwall_stress_line").items()}
+    from wallstress.classify import GEOMETRY_8_NAMES  # labels only
+
+    return {"cut": cut, "grades": grades, "mass": coef, "line": line, "g8": list(GEOMETRY_8_NAMES)}
+
+
+GEOMETRY_4 = (
+    "",
+    "normal",
+    "concentric_remodelling",
+    "eccentric_hypertrophy",
+    "concentric_hypertrophy",
+)
+
+
+def bare_all_measures(df: pd.DataFrame, k: dict) -> pd.DataFrame:
+    """Every measure column ``analyse`` adds except ``flags``, as bare numpy on the default options.
+
+    No validation, unit handling, findings or methods record; classes and grades as Categoricals
+    (as ``analyse`` returns them). ``k`` is :func:`_constants`. ``check_same_measures`` confirms,
+    in the same run, that this computes what the tool computes.
+    """
+    col = {
+        c: df[c].to_numpy(float)
+        for c in (
+            "height_cm",
+            "weight_kg",
+            "ivsd_cm",
+            "lvidd_cm",
+            "pwd_cm",
+            "lvids_cm",
+            "pws_cm",
+            "sbp_mmhg",
+            "hr_bpm",
+        )
+    }
+    h, w, ivsd, lvidd, pwd = (
+        col[c] for c in ("height_cm", "weight_kg", "ivsd_cm", "lvidd_cm", "pwd_cm")
+    )
+    lvids, pws, sbp = col["lvids_cm"], col["pws_cm"], col["sbp_mmhg"]
+    sex = df["sex"].to_numpy(object)
+    male, female = sex == "M", sex == "F"
+    known_sex = male | female
+    cut = k["cut"]
+
+    def by_sex(name):
+        return np.where(male, cut[name, "M"], cut[name, "F"])
+
+    bsa = 0.007184 * w**0.425 * h**0.725  # DuBois 1916
+    lvm = 0.8 * 1.04 * ((ivsd + lvidd + pwd) ** 3 - lvidd**3) + 0.6  # Devereux 1986
+    lvmi = lvm / bsa
+    lvmi_h27 = lvm / (h / 100) ** 2.7
+    lvmi_h = lvm / (h / 100)
+    rwt = 2 * pwd / lvidd
+    lvh = lvmi > by_sex("lvmi_bsa_g_m2")  # Lang 2015
+    conc = rwt > by_sex("rwt")
+    ok4 = known_sex & ~np.isnan(lvmi) & ~np.isnan(rwt)
+    geometry = np.where(ok4, 1 + 2 * lvh + conc, 0)  # Ganau 1992
+    edv = 7 / (2.4 + lvidd) * lvidd**3  # Teichholz 1976
+    esv = 7 / (2.4 + lvids) * lvids**3
+    edvi = edv / bsa
+    concentricity = lvm / edv ** (2 / 3)
+    dil = edvi > by_sex("edv_index_ml_m2")
+    geometry_8 = np.where(ok4 & ~np.isnan(edvi), 1 + 4 * lvh + 2 * conc + dil, 0)  # Gaasch 2011
+
+    def grade(values, measure):
+        codes = np.where(known_sex & ~np.isnan(values), 1, 0)
+        names = ["", "normal"]
+        for sex_code, mask in (("F", female), ("M", male)):
+            for g, op, v in k["grades"][measure, sex_code]:
+                if g not in names:
+                    names.append(g)
+                hit = values < v if op == "<" else values > v
+                codes = np.where(mask & hit, names.index(g), codes)
+        return pd.Categorical.from_codes(codes, names)
+
+    fs = (lvidd - lvids) / lvidd * 100
+    sv = edv - esv
+    ef = sv / edv * 100
+    mess = 0.334 * sbp * lvids / (pws * (1 + pws / lvids))  # Grossman 1975
+    a = lvids / 2
+    b = a + pws
+    cess = 1.35 * sbp * a**2 / (b**2 - a**2) * (1 + b**2 / (a + pws / 2) ** 2)  # Gaasch 1979
+    outer = lvidd + (ivsd + pwd) / 2
+    mfs = (outer - np.cbrt(outer**3 - lvidd**3 + lvids**3)) / outer * 100  # Shimizu 1991
+    mfs_pred = k["line"]["intercept_pct"] + k["line"]["slope_pct_per_kdyn_cm2"] * cess
+    sw = 0.0144 * sbp * sv  # de Simone
+    m = k["mass"]
+    lvm_pred = (
+        m["intercept"]
+        + m["height27"] * (h / 100) ** 2.7
+        + m["stroke_work"] * sw
+        + m["sex"] * np.where(male, 1.0, np.where(female, 2.0, np.nan))
+    )
+    nan = np.full(len(df), np.nan)  # Vcf needs ejection time, absent here
+    text = pd.Categorical.from_codes
+    out = pd.DataFrame(
+        {
+            "bsa_m2": bsa,
+            "lv_mass_g": lvm,
+            "lv_mass_method": text(np.where(np.isnan(lvm), 0, 1), ["", "ase_corrected"]),
+            "lvmi_bsa_g_m2": lvmi,
+            "lvmi_h27_g_m2_7": lvmi_h27,
+            "lvmi_h_g_m": lvmi_h,
+            "rwt": rwt,
+            "geometry": text(geometry, GEOMETRY_4),
+            "edv_ml": edv,
+            "edv_source": text(np.where(np.isnan(edv), 0, 1), ["", "teichholz"]),
+            "edv_index_ml_m2": edvi,
+            "concentricity_g_ml23": concentricity,
+            "geometry_8": text(geometry_8, k["g8"]),
+            "lvmi_grade": grade(lvmi, "lvmi_bsa_g_m2"),
+            "rwt_grade": grade(rwt, "rwt"),
+            "lvidd_grade": grade(lvidd, "lvidd_cm"),
+            "ivsd_grade": grade(ivsd, "ivsd_cm"),
+            "pwd_grade": grade(pwd, "pwd_cm"),
+            "fs_pct": fs,
+            "edv_teichholz_ml": edv,
+            "esv_teichholz_ml": esv,
+            "sv_teichholz_ml": sv,
+            "ef_teichholz_pct": ef,
+            "es_pressure_mmhg": sbp,
+            "mess_kdyn_cm2": mess,
+            "cess_kdyn_cm2": cess,
+            "midwall_fs_pct": mfs,
+            "midwall_fs_predicted_pct": mfs_pred,
+            "midwall_fs_stress_corrected_pct": mfs / mfs_pred * 100,
+            "vcf_circ_s": nan,
+            "vcfc_circ_s": nan.copy(),
+            "stroke_work_g_m": sw,
+            "lv_mass_predicted_g": lvm_pred,
+            "lv_mass_appropriateness_pct": lvm / lvm_pred * 100,
+        },
+        index=df.index,
+    )
+    return pd.concat([df, out], axis=1)
+
+
+def check_same_measures(df: pd.DataFrame, k: dict) -> None:
+    """The all-measures baseline computes what ``analyse`` computes (numbers within 1e-9
+    relative, classes and grades code for code) on rows that pass validation; raises otherwise."""
+    import wallstress
+
+    got = wallstress.analyse_with_findings(df)
+    base = bare_all_measures(df, k)
+    clean = ~got.findings.loc[got.findings["severity"] != "note", "row"].pipe(
+        lambda r: np.isin(np.arange(len(df)), r.to_numpy())
+    )
+    for c in base.columns[df.shape[1] :]:
+        t, b = got.table[c], base[c]
+        if isinstance(b.dtype, pd.CategoricalDtype):
+            same = t.astype(str).to_numpy()[clean] == b.astype(str).to_numpy()[clean]
+        else:
+            same = np.isclose(
+                t.to_numpy(float), b.to_numpy(float), rtol=1e-9, atol=0, equal_nan=True
+            )[clean]
+        if not same.all():
+            raise AssertionError(
+                f"baseline differs from analyse in {c!r} on {int((~same).sum())} rows"
+            )
+
+
 # --------------------------------------------------------------------------------------------------
 # timing helpers
 
@@ -272,7 +453,10 @@ def bench_rss(n, tmp: Path) -> dict:
     df.to_csv(src, index=False)
     table = pd.read_csv(src)
     out = wallstress.analyse(table)
-    tables_mib = (table.memory_usage(deep=True).sum() + out.memory_usage(deep=True).sum()) / 1024**2
+    ours = out.iloc[:, table.shape[1] :]  # the result repeats the input's columns: count them once
+    tables_mib = (
+        table.memory_usage(deep=True).sum() + ours.memory_usage(deep=True).sum()
+    ) / 1024**2
     imports = child_peak_rss_mib("import wallstress.jobs, wallstress.writers, pandas, numpy")
     code = textwrap.dedent(
         f"""

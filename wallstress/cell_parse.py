@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
 
 from wallstress import units
 
@@ -135,8 +136,9 @@ def parse_numbers(s: pd.Series, quantity: str = "") -> tuple[np.ndarray, np.ndar
         return nan, nan.copy(), s.notna().to_numpy(dtype=bool)
     if pd.api.types.is_numeric_dtype(s.dtype) and not pd.api.types.is_complex_dtype(s.dtype):
         v = s.to_numpy(dtype="float64", na_value=np.nan)
-        bad = ~np.isfinite(v) & ~np.isnan(v)
-        v = np.where(bad, np.nan, v)
+        bad = np.isinf(v)
+        if bad.any():
+            v = np.where(bad, np.nan, v)
         return v, nan, bad
     codes, uniq = _factorize(_as_text(s))
     v_u, f_u, bad_u = _numbers_from_text(uniq, quantity)
@@ -213,17 +215,24 @@ def parse_sex(s: pd.Series) -> tuple[pd.Series, dict[str, np.ndarray]]:
 
 
 def parse_ids(s: pd.Series) -> pd.Series:
-    """Identifiers as text (object dtype, NaN for empty); 1001.0 read from a sheet becomes "1001"."""
+    """Identifiers as text (NaN for empty); 1001.0 read from a sheet becomes "1001".
+
+    A column of whole numbers comes back in pandas' text dtype (built by Arrow, no Python string
+    per row); other columns as object text.
+    """
     n = len(s)
     if pd.api.types.is_numeric_dtype(s.dtype) and not pd.api.types.is_bool_dtype(s.dtype):
         v = s.to_numpy(dtype="float64", na_value=np.nan)
         integral = np.isfinite(v) & (np.floor(v) == v) & (np.abs(v) < 2**53)
+        other = np.isfinite(v) & ~integral
+        if not other.any():
+            whole = np.where(integral, v, 0).astype("int64")
+            text = pa.array(whole, mask=~integral).cast(pa.large_string())
+            return pd.Series(pd.array(text, dtype=pd.StringDtype("pyarrow", na_value=np.nan)))
         out = np.full(n, np.nan, dtype=object)
         if integral.any():
             out[integral] = v[integral].astype("int64").astype(str).astype(object)
-        other = np.isfinite(v) & ~integral
-        if other.any():
-            out[other] = pd.Series(v[other]).astype(str).to_numpy(dtype=object)
+        out[other] = pd.Series(v[other]).astype(str).to_numpy(dtype=object)
         return pd.Series(out, dtype=object)
     arr = s.to_numpy(dtype=object)
     is_float = np.fromiter((type(x) is float for x in arr), dtype=bool, count=n)

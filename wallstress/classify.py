@@ -74,8 +74,7 @@ def abnormal(values, sex, refset: ReferenceSet, measure: str, *, masks=None) -> 
         cut = refset.cutoff(measure, code)
         if cut is None:
             continue
-        m = masks[code] & known
-        out[m] = cut.met(v)[m]
+        out = np.where(masks[code] & known, cut.met(v), out)
     return out
 
 

@@ -92,19 +92,58 @@ def write_csv(
     one_column_gaps = df.shape[1] == 1 and bool(df.iloc[:, 0].isna().any())
     if decimal == "." and enc in FAST_ENCODINGS and not one_column_gaps:
         try:
-            table = arrow_table(df)
+            # the text of a slice of rows at a time: the whole table as Arrow text would be
+            # several times the size of the frame itself
+            whole = _whole_number_columns(df)
+            first = arrow_table(df.iloc[:SLICE_ROWS], whole)
         except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError, UnicodeError):
-            table = None
-        if table is not None:
-            options = pa_csv.WriteOptions(include_header=header, delimiter=delimiter)
-            with _binary(path) as fh:
-                if enc == "utf-8-sig" and header:
-                    fh.write(_BOM)
-                pa_csv.write_csv(table, fh, write_options=options)
+            first = None
+        if first is not None and _write_slices(df, path, first, whole, header, delimiter, enc):
             return
     _write_with_pandas(
         df, path, delimiter=delimiter, decimal=decimal, encoding=encoding, header=header
     )
+
+
+SLICE_ROWS = 65_536
+
+
+def _write_slices(df, path, first, whole, header, delimiter, enc) -> bool:
+    """Write the first slice's table, then each further slice converted in turn. False if a later
+    slice cannot be converted (the file is then left for the pandas path to write afresh)."""
+    start = path.tell() if hasattr(path, "write") else None
+    with _binary(path) as fh:
+        if enc == "utf-8-sig" and header:
+            fh.write(_BOM)
+        pa_csv.write_csv(first, fh, write_options=_options(header, delimiter))
+        for i in range(SLICE_ROWS, len(df), SLICE_ROWS):
+            try:
+                table = arrow_table(df.iloc[i : i + SLICE_ROWS], whole)
+            except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError, UnicodeError):
+                if start is not None:
+                    fh.seek(start)
+                    fh.truncate()
+                return False
+            pa_csv.write_csv(table, fh, write_options=_options(False, delimiter))
+    return True
+
+
+def _options(header: bool, delimiter: str) -> pa_csv.WriteOptions:
+    return pa_csv.WriteOptions(include_header=header, delimiter=delimiter)
+
+
+def _whole_number_columns(df: pd.DataFrame) -> set[int]:
+    """Positions of float columns holding a whole number anywhere (written as text with ``.0``,
+    decided for the whole column so that every slice writes it alike)."""
+    out = set()
+    for j in range(df.shape[1]):
+        col = df.iloc[:, j]
+        if pd.api.types.is_float_dtype(col.dtype):
+            arr = col.to_numpy(dtype="float64", na_value=np.nan)
+            with np.errstate(invalid="ignore"):
+                if (np.isfinite(arr) & (arr == np.trunc(arr))).any():
+                    out.add(j)
+    return out
 
 
 @contextlib.contextmanager
@@ -117,27 +156,45 @@ def _binary(target):
             yield fh
 
 
-def arrow_table(df: pd.DataFrame) -> pa.Table:
+def arrow_table(df: pd.DataFrame, whole: set[int] | None = None) -> pa.Table:
     """``df`` as an Arrow table that the CSV writer renders as ``to_csv`` would (see module notes).
 
-    Column names become text (repeats allowed); NaN becomes null in float columns.
+    Column names become text (repeats allowed); NaN becomes null in float columns. ``whole``: the
+    positions of float columns to write as text with ``.0`` (default: those holding a whole number).
     """
-    arrays = [_arrow_column(df.iloc[:, j]) for j in range(df.shape[1])]
+    if whole is None:
+        whole = _whole_number_columns(df)
+    arrays = [_arrow_column(df.iloc[:, j], j in whole) for j in range(df.shape[1])]
     names = [str(c) for c in df.columns]
     if not arrays:
         return pa.table({})
     return pa.Table.from_arrays(arrays, names=names)
 
 
-def _arrow_column(col: pd.Series) -> pa.Array:
+def categorical_text(col: pd.Series) -> pa.Array | None:
+    """A Categorical of text as an Arrow text array (missing -> null), built in C; None otherwise."""
+    cats = col.dtype.categories
+    if pd.api.types.infer_dtype(cats, skipna=False) not in ("string", "empty"):
+        return None
+    codes = col.array.codes
+    missing = codes < 0
+    idx = pa.array(codes.astype(np.int32), mask=missing if missing.any() else None)
+    dictionary = pa.array(cats.to_numpy(dtype=object), type=pa.large_string())
+    return pc.take(dictionary, idx)
+
+
+def _arrow_column(col: pd.Series, whole_number: bool = False) -> pa.Array:
     dtype = col.dtype
     if isinstance(dtype, pd.CategoricalDtype):
+        text = categorical_text(col)
+        if text is not None:
+            return text
         col = col.astype(object).where(col.notna(), None)
         dtype = col.dtype
     if pd.api.types.is_datetime64_any_dtype(dtype) or pd.api.types.is_timedelta64_dtype(dtype):
         return _as_text(col.astype(str).where(col.notna(), None))
     if pd.api.types.is_float_dtype(dtype):
-        return _float_column(col.to_numpy(dtype="float64", na_value=np.nan))
+        return _float_column(col.to_numpy(dtype="float64", na_value=np.nan), whole_number)
     if pd.api.types.is_bool_dtype(dtype) or pd.api.types.is_numeric_dtype(dtype):
         if pd.api.types.is_complex_dtype(dtype):
             return _as_text(col.map(str).where(col.notna(), None))
@@ -162,18 +219,16 @@ def _arrow_column(col: pd.Series) -> pa.Array:
     return _as_text(text)
 
 
-def _float_column(arr: np.ndarray) -> pa.Array:
+def _float_column(arr: np.ndarray, whole_number: bool) -> pa.Array:
     """Floats as pyarrow writes them, but whole numbers keep ``.0`` (``5.0``, as pandas writes them).
 
-    pyarrow renders 5.0 as ``5``, which a reader takes for an integer column; such a column is
-    written as its shortest round-trip text with ``.0`` added where the text has no point or
-    exponent (the fields are then quoted, and read back as the same floats).
+    pyarrow renders 5.0 as ``5``, which a reader takes for an integer column; a column holding a
+    whole number (``whole_number``) is written as its shortest round-trip text with ``.0`` added
+    where the text has no point or exponent (the fields are then quoted, and read back as the same
+    floats).
     """
     values = pa.array(arr, from_pandas=True)
-    finite = arr[np.isfinite(arr)]
-    if not finite.size or not (finite == np.trunc(finite)).any():
-        return values
-    return _float_text(values)
+    return _float_text(values) if whole_number else values
 
 
 def _float_text(values: pa.Array) -> pa.Array:

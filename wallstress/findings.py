@@ -240,6 +240,23 @@ def _text_dtype():
 _TEXT_DTYPE = _text_dtype()
 
 
+def categorical_text(codes, names) -> pd.Categorical:
+    """``names[codes]`` as a Categorical of text (-1 gives a missing value); names may repeat.
+
+    The pipeline's text outputs (geometry, grades, flags) repeat a few strings over every row: as
+    a Categorical each row costs one small integer, and the writers turn them into text per chunk.
+    """
+    names = [str(x) for x in names]
+    distinct = list(dict.fromkeys(names))
+    codes = np.asarray(codes)
+    if len(distinct) != len(names):
+        remap = np.array([distinct.index(x) for x in names], dtype=np.int64)
+        codes = np.where(codes >= 0, remap[np.where(codes >= 0, codes, 0)], -1)
+    # categories in pandas' text dtype, as a parquet file read back gives them
+    dtype = pd.CategoricalDtype(pd.Index(distinct, dtype=_TEXT_DTYPE), ordered=False)
+    return _categorical(codes, distinct, dtype)
+
+
 def text_from_codes(codes: np.ndarray, names) -> pd.api.extensions.ExtensionArray | np.ndarray:
     """``names[codes]`` as a plain text column (pandas' default text dtype), built in C.
 

@@ -198,7 +198,7 @@ def map_columns(raw: pd.DataFrame, options: Options | None = None) -> Mapped:
     index = pd.RangeIndex(n)
     frame = pd.DataFrame(
         {
-            name: pd.Series(v.to_numpy(), index=index, dtype=v.dtype)
+            name: pd.Series(v.to_numpy(), index=index, dtype=v.dtype, copy=False)
             if isinstance(v, pd.Series)
             else v
             for name, v in canonical.items()
@@ -292,8 +292,10 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
         unit_from, basis = None, "inferred"
 
     plain = np.isnan(cell_factor)
+    all_plain = bool(plain.all())  # no cell states its own unit (the usual case): no masking copies
+    plain_values = value if all_plain else value[plain]
     if unit_from is None:
-        guess = units.infer_unit(fld.name, value[plain])
+        guess = units.infer_unit(fld.name, plain_values)
         unit_from = guess.unit
         alternatives = len(units.candidate_units(fld.name)) > 1
         if alternatives and guess.confidence != "none":
@@ -316,7 +318,7 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
                 )
             )
     else:
-        guess = units.infer_unit(fld.name, value[plain]) if plain.any() else None
+        guess = units.infer_unit(fld.name, plain_values) if plain_values.size else None
         if (
             guess is not None
             and guess.confidence == "high"
@@ -336,9 +338,10 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
             )
     col_factor = units.factor(q, unit_from) if q in units.UNITS else 1.0
     with np.errstate(invalid="ignore", over="ignore"):
-        internal = value * np.where(plain, col_factor, cell_factor)
-    internal = np.where(np.isfinite(internal), internal, np.nan).astype("float64")
-    if (~plain).any():
+        internal = value * (col_factor if all_plain else np.where(plain, col_factor, cell_factor))
+    internal = np.asarray(internal, dtype="float64")  # always a new array: value may be the user's
+    internal[~np.isfinite(internal)] = np.nan
+    if not all_plain:
         parts.append(
             fnd.make(
                 [-1],
@@ -371,4 +374,4 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
         "unit_basis": basis,
         "factor": float(col_factor),
     }
-    return pd.Series(internal, dtype="float64"), entry, parts
+    return pd.Series(internal, dtype="float64", copy=False), entry, parts

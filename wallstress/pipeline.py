@@ -79,7 +79,7 @@ def analyse_with_findings(
     canonical.index = pd.RangeIndex(len(df))
     out, cfind, used = _compute_columns(canonical, options, refset)
     findings = fnd.concat([prior_findings, mapped.findings, vfind, cfind], categorical=True)
-    out["flags"] = fnd.text_from_codes(*fnd.flag_codes(findings, len(df)))
+    out["flags"] = fnd.categorical_text(*fnd.flag_codes(findings, len(df)))
     # copy=False: each output its own block (no stacking copy of ~30 float columns); an array that
     # is read-only (a view of an input) or already in another column is copied first
     outputs = pd.DataFrame(_own_arrays(out, OUTPUT_COLUMNS), index=canonical.index, copy=False)
@@ -114,7 +114,7 @@ def _append(df: pd.DataFrame, outputs: pd.DataFrame) -> pd.DataFrame:
 
 
 def _text(codes, names):
-    return fnd.text_from_codes(codes, names)
+    return fnd.categorical_text(codes, names)
 
 
 def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, pd.DataFrame, dict]:
@@ -266,8 +266,11 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, pd.Data
         )
 
     # pressure and stress
-    sbp = stress.mean_of_readings(get("sbp_mmhg"), get("sbp_2_mmhg"), get("sbp_3_mmhg"))
-    dbp = stress.mean_of_readings(get("dbp_mmhg"), get("dbp_2_mmhg"), get("dbp_3_mmhg"))
+    def readings(first, *repeats):  # the columns present (an absent repeat adds nothing)
+        return [get(first), *(get(r) for r in repeats if r in c.columns)]
+
+    sbp = stress.mean_of_readings(*readings("sbp_mmhg", "sbp_2_mmhg", "sbp_3_mmhg"))
+    dbp = stress.mean_of_readings(*readings("dbp_mmhg", "dbp_2_mmhg", "dbp_3_mmhg"))
     if o.es_pressure == "measured":
         measured = get("es_pressure_measured_mmhg")
         esp = np.where(np.isnan(measured), sbp, measured)

@@ -214,16 +214,31 @@ def dask_analyse(ddf, options: Options | None = None):
     Each partition is analysed on its own, so rules that compare rows (duplicate studies) see only
     their partition, and the unit of a column whose header states none is inferred per partition:
     put units in the headers (``lvidd_mm``, ``LVIDd (mm)``) or pass ``Options(units="mm"|"cm")`` for
-    a registry. The meta (column names and dtypes) comes from a zero-row analysis of ``ddf._meta``,
-    with text outputs given the text dtype a non-empty analysis returns.
+    a registry. Text outputs (geometry, grades, flags) come as plain text rather than the
+    Categoricals of :func:`wallstress.analyse`, so that every partition has one dtype; the meta
+    comes from a zero-row analysis of ``ddf._meta``.
     """
     options = options or Options()
-    meta = analyse(ddf._meta, options)
+    meta = _analyse_as_text(ddf._meta, options)
+    return ddf.map_partitions(_analyse_as_text, options, meta=meta)
+
+
+def _analyse_as_text(df: pd.DataFrame, options: Options) -> pd.DataFrame:
+    """:func:`analyse` with its Categorical text outputs as plain text.
+
+    Each partition's Categoricals would have their own categories (the flags seen there); plain
+    text gives every partition, and the meta, one dtype.
+    """
+    table = analyse(df, options)
     text = pd.Series(["x"]).dtype
-    for name in meta.columns[len(ddf._meta.columns) :]:
-        if meta[name].dtype == object:
-            meta[name] = meta[name].astype(text)
-    return ddf.map_partitions(analyse, options, meta=meta)
+    ours = table.columns[df.shape[1] :]
+    return table.astype(
+        {
+            c: text
+            for c in ours
+            if table[c].dtype == object or isinstance(table[c].dtype, pd.CategoricalDtype)
+        }
+    )
 
 
 # --------------------------------------------------------------------------------------------------

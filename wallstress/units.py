@@ -328,7 +328,7 @@ def infer_unit(field: str, values) -> InferredUnit:
     cands = candidate_units(field)
     if arr.size == 0 or f.typical is None:
         return InferredUnit(f.unit, "none", f"no usable values; {f.unit} assumed")
-    med = float(np.median(arr))
+    med = float(np.median(arr, overwrite_input=True))  # arr is our own filtered copy
     lo, hi = f.typical
     q = f.quantity
     conv = {u: med * _FACTORS[q][u] if q in _FACTORS else med for u in cands}

@@ -62,7 +62,7 @@ import pyarrow.compute as pc
 from defusedxml import ElementTree as SafeET
 
 from .errors import OutputError
-from .fast_csv import _missing
+from .fast_csv import _missing, categorical_text
 from .sheet_bounds import col_letters
 
 EXCEL_MAX_ROWS = 1_048_576
@@ -797,10 +797,13 @@ def _plan_sheet(spec: SheetSpec, sheet: str, date1904: bool, notes: list[str]) -
 def _prepare(col: pd.Series, header: str, sheet: str, date1904: bool, notes) -> _Column:
     """One column as arrays ready for chunked encoding (type decisions made once per column)."""
     dtype = col.dtype
+    where = f"sheet {sheet!r}, column {header!r}"
     if isinstance(dtype, pd.CategoricalDtype):
+        text = categorical_text(col)
+        if text is not None:
+            return _text_column(text, header, where, notes)
         col = col.astype(object)
         dtype = col.dtype
-    where = f"sheet {sheet!r}, column {header!r}"
     if pd.api.types.is_bool_dtype(dtype):
         mask = col.isna().to_numpy()
         return _Column(
@@ -890,7 +893,10 @@ def _put(values: pa.Array, positions: np.ndarray, texts: list[str]) -> pa.Array:
 
 def _text_column(values, header, where, notes) -> _Column:
     try:
-        arr = pa.array(values, type=pa.large_string(), from_pandas=True)
+        if isinstance(values, pa.Array):
+            arr = values.cast(pa.large_string())
+        else:
+            arr = pa.array(values, type=pa.large_string(), from_pandas=True)
     except (pa.ArrowInvalid, pa.ArrowTypeError, UnicodeError):
         text = [None if _missing(v) else str(v) for v in values]
         arr = pa.array(_clean_texts(text, notes, where, "text"), type=pa.large_string())

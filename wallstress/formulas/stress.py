@@ -259,6 +259,8 @@ def mean_of_readings(*readings):
     if not readings:
         raise ValueError("mean_of_readings needs at least one reading; pass e.g. sbp_1, sbp_2")
     arrays, template = as_arrays(*readings)
+    if len(arrays) == 1:  # one reading: the mean is the reading itself
+        return restore(positive(arrays[0]), template)
     stacked = np.stack(np.broadcast_arrays(*[positive(a) for a in arrays]))
     present = np.isfinite(stacked)
     count = present.sum(axis=0)
