@@ -276,7 +276,7 @@ def test_padding_check_agrees_with_arrow_trim():
     import pyarrow as pa
     import pyarrow.compute as pc
 
-    from wallstress.csv_in import _PADDED
+    from wallstress.grid_in import _PADDED
 
     spaces = [chr(c) for c in range(0x3001) if chr(c).isspace()] + ["\u2028", "\u2029"]
     texts = [f"{w}5" for w in spaces] + [f"5{w}" for w in spaces] + ["5", "5 5", "a\u00a0b"]

@@ -134,3 +134,20 @@ def test_infer_bad_field():
     """A wrong call names the argument and lists valid fields."""
     with pytest.raises(ValueError, match=r"field='sex' is not a numeric field"):
         units.infer_unit("sex", [1, 2])
+
+
+def test_long_column_judged_by_evenly_spaced_values():
+    """Above 2 x MEDIAN_SAMPLE values the unit comes from the median of evenly spaced values; it
+    decides as the whole column does, and says so (LVIDd in mm, Lang 2015 Table 1 as above;
+    the sample's median against numpy's median of the whole column, a reference library)."""
+    rng = np.random.default_rng(3)
+    n = 5 * units.MEDIAN_SAMPLE
+    mm = rng.normal(48, 5, n)
+    mm[rng.random(n) < 0.02] = np.nan  # gaps do not matter
+    got = units.infer_unit("lvidd_cm", mm)
+    assert (got.unit, got.confidence) == ("mm", "high")
+    assert "evenly spaced" in got.reason
+    quoted = float(got.reason.split("values ")[1].split()[0])
+    assert abs(quoted - np.nanmedian(mm)) < 0.2  # within 0.04 SD of the whole column's median
+    short = units.infer_unit("lvidd_cm", mm[: units.MEDIAN_SAMPLE])
+    assert "evenly spaced" not in short.reason and short.unit == "mm"

@@ -31,6 +31,7 @@ from wallstress.grid_in import (
     _frame_from_grid,
     cell_mask,
     text_cells,
+    trimmed,
 )
 from wallstress.study_table import StudyTable
 
@@ -196,34 +197,47 @@ def _read_csv_text(p: Path, data: bytes, max_rows, columns) -> StudyTable:
     )
 
 
-# a cell that utf8_trim_whitespace would change: Unicode white space at either end (checked against
-# it for every white-space code point up to U+3000)
-_WS = r"[\s\pZ\x{85}\x{0b}\x{1c}-\x{1f}]"
-_PADDED = f"^{_WS}|{_WS}$"
-
 _PLAIN_NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
 
 
 _COMMA_NUM = r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?"
 
 
+GROUP_CELLS = (
+    1 << 21
+)  # cells checked together: few Arrow calls for wide files, bounded memory for long
+
+
 def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataFrame, str]:
     """Columns whose every non-empty cell is a number become float64; others stay text.
 
     With ``allow_comma`` (delimiter not ','), a column of numbers written with a decimal comma is
-    read too, unless every cell looks like a thousands separator ("1,234"). All cells are checked
-    at once (:func:`wallstress.grid_in.text_cells`).
+    read too, unless every cell looks like a thousands separator ("1,234"). Columns are checked a
+    group at a time, all cells of a group at once (:func:`wallstress.grid_in.text_cells`): a
+    50 x 20,000 table is one group, a 10^6-row table about one column per group.
     """
     n, k = table.shape
     if k == 0 or n == 0:
         return table, "."
-    flat, is_text = text_cells(table)
+    width = max(1, GROUP_CELLS // n)
+    converted: dict[int, np.ndarray] = {}
+    comma = False
+    for start in range(0, k, width):
+        got, group_comma = _numbers_in(table.iloc[:, start : start + width], allow_comma)
+        converted.update({start + j: v for j, v in got.items()})
+        comma |= group_comma
+    if not converted:
+        return table, "."
+    return _assemble(table, converted), ("," if comma else ".")
+
+
+def _numbers_in(sub: pd.DataFrame, allow_comma: bool) -> tuple[dict[int, np.ndarray], bool]:
+    """The columns of ``sub`` that are numbers, parsed: ({position: float64 values}, any comma)."""
+    n, k = sub.shape
+    flat, is_text = text_cells(sub)
     shape = (n, k)
-    padded = pc.any(pc.match_substring_regex(flat, _PADDED)).as_py()
-    t = (
-        pc.utf8_trim_whitespace(flat) if padded else flat
-    )  # no copy of every cell when none is padded
-    nonempty = table.notna().to_numpy()
+    t = trimmed(flat)
+    nonempty = sub.notna().to_numpy()
     # columns that are not text at all (already numbers) are left alone
     any_text = is_text.any(axis=0)
     plain = cell_mask(pc.match_substring_regex(t, f"^(?:{_PLAIN_NUM})$"), shape)
@@ -235,20 +249,14 @@ def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataF
             comma = cell_mask(pc.match_substring_regex(t, f"^(?:{_COMMA_NUM})$"), shape)
             thousands = cell_mask(pc.match_substring_regex(t, r"\d,\d{3}(?:[.,]|$)"), shape)
             is_comma = cand & (comma | ~nonempty).all(axis=0) & ~(thousands | ~nonempty).all(axis=0)
-    convert = is_plain | is_comma
-    if not convert.any():
-        return table, "."
-    text = t
-    if is_comma.any():
-        text = pc.replace_substring(t, ",", ".")
-    cols = np.flatnonzero(convert)
-    pick = np.zeros(shape, dtype=bool)
-    pick[:, cols] = nonempty[:, cols]
-    flat_pick = pick.ravel(order="F")
-    vals_f = np.full(n * k, np.nan)
-    vals_f[flat_pick] = _parse_floats(pc.filter(text, pa.array(flat_pick)))
-    values = vals_f.reshape(shape, order="F")
-    return _assemble(table, values, convert), ("," if is_comma.any() else ".")
+    out = {}
+    for j in np.flatnonzero(is_plain | is_comma):
+        # every non-empty cell of the column matched a number pattern; empty cells are null -> NaN
+        col = t.slice(int(j) * n, n)
+        if is_comma[j]:
+            col = pc.replace_substring(col, ",", ".")
+        out[int(j)] = _parse_floats(col)
+    return out, bool(is_comma.any())
 
 
 def _parse_floats(text) -> np.ndarray:
@@ -266,18 +274,18 @@ def _parse_floats(text) -> np.ndarray:
     return parsed.to_numpy(zero_copy_only=False)
 
 
-def _assemble(table: pd.DataFrame, values: np.ndarray, convert: np.ndarray) -> pd.DataFrame:
-    """Converted columns from ``values`` (float64), the others as they were (text keeps its dtype)."""
+def _assemble(table: pd.DataFrame, converted: dict) -> pd.DataFrame:
+    """Converted columns (float64 by position), the others as they were (text keeps its dtype)."""
     single_object = all(is_object_dtype(dt) for dt in table.dtypes)
     arr = table.to_numpy(dtype=object) if single_object else None
     out = {}
     for j in range(table.shape[1]):
-        if convert[j]:
-            out[j] = values[:, j]
+        if j in converted:
+            out[j] = converted[j]
         elif arr is not None:
             out[j] = arr[:, j]
         else:
             out[j] = table.iloc[:, j]
-    res = pd.DataFrame(out, index=table.index)
+    res = pd.DataFrame(out, index=table.index, copy=False)  # each column its own block, no copy
     res.columns = table.columns
     return res

@@ -39,8 +39,10 @@ def _write_flat(out, suffix, parts, methods, source, escape_formulas) -> WriteRe
                 frame = _add_missing_findings(frame, report.formula_like)
             tmp = batch.path(target)
             if suffix == ".csv":
-                _to_csv(frame, tmp, source, escape_formulas)
+                _to_csv(frame, tmp, source, escape_formulas)  # Categoricals as text, by slice
             else:
+                if part.key == "findings":  # text columns, as the chunked path writes them
+                    frame = _findings.as_text(frame)
                 _to_parquet(frame, tmp, part.sheet, report)
         record = methods_record(
             methods, source, notes=report.notes, outputs=[*outputs, methods_json]

@@ -96,6 +96,20 @@ def text_cells(frame: pd.DataFrame) -> tuple[pa.ChunkedArray, np.ndarray]:
     return flat, mask
 
 
+# a cell that utf8_trim_whitespace would change: Unicode white space at either end (checked against
+# it for every white-space code point up to U+3000, tests/test_readers.py)
+_WS = r"[\s\pZ\x{85}\x{0b}\x{1c}-\x{1f}]"
+_PADDED = f"^{_WS}|{_WS}$"
+
+
+def trimmed(flat):
+    """``utf8_trim_whitespace(flat)``, or ``flat`` itself when no cell is padded (the usual case:
+    no second copy of every cell)."""
+    if pc.any(pc.match_substring_regex(flat, _PADDED)).as_py():
+        return pc.utf8_trim_whitespace(flat)
+    return flat
+
+
 def cell_mask(values, shape) -> np.ndarray:
     """An Arrow boolean result over :func:`text_cells` -> (rows, columns) numpy mask (null = False)."""
     b = pc.fill_null(values, False)
@@ -110,7 +124,7 @@ def _blank_to_nan(grid: pd.DataFrame, strip: bool = True) -> pd.DataFrame:
         return grid.astype(object) if grid.shape[1] else grid
     flat, is_text = text_cells(grid)
     if strip:
-        flat = pc.utf8_trim_whitespace(flat)
+        flat = trimmed(flat)
     blank = cell_mask(pc.equal(flat, ""), grid.shape) | grid.isna().to_numpy()
     if all(is_object_dtype(dt) for dt in grid.dtypes):
         arr = grid.to_numpy(dtype=object)
@@ -249,12 +263,19 @@ def _repeated_header_rows(table: pd.DataFrame, header_texts: list[str]) -> list:
     named = np.array([bool(h) for h in header_texts])
     if len(table) == 0 or named.sum() < 3:
         return []
-    want = np.array(header_texts, dtype=object)
-    flat, is_text = text_cells(table)
-    header_flat = pa.array(np.repeat(want, len(table)), type=pa.large_string())
-    same = cell_mask(pc.equal(pc.utf8_trim_whitespace(flat), header_flat), table.shape) & named
-    hits = same.sum(axis=1)
-    rows = np.flatnonzero((hits >= 3) & (hits >= 0.8 * named.sum()))
+    n_named = int(named.sum())
+    needed = max(3.0, 0.8 * n_named)
+    hits = np.zeros(len(table), dtype=np.int64)
+    checked = 0
+    # column by column, stopping as soon as no row can still reach the threshold (at 10^6 rows of
+    # data that is after a few columns, with no copy of the whole table's text)
+    for j in np.flatnonzero(named):
+        flat, _ = text_cells(table.iloc[:, [j]])
+        hits += cell_mask(pc.equal(trimmed(flat), header_texts[j]), (len(table), 1))[:, 0]
+        checked += 1
+        if hits.max() + (n_named - checked) < needed:
+            return []
+    rows = np.flatnonzero((hits >= 3) & (hits >= 0.8 * n_named))
     if not rows.size:
         return []
     return [
@@ -320,7 +341,7 @@ def _cell_findings(table: pd.DataFrame, error_cells=None) -> list:
     sub = table.iloc[:, text_cols]
     flat, is_text = text_cells(sub)
     shape = sub.shape
-    t = pc.utf8_trim_whitespace(flat)
+    t = trimmed(flat)
     err = np.zeros(shape, dtype=bool)
     if cell_mask(pc.starts_with(t, "#"), shape).any():
         err = cell_mask(pc.is_in(pc.utf8_upper(t), value_set=_ERRORS_ARROW), shape) & is_text

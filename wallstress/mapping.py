@@ -198,7 +198,7 @@ def map_columns(raw: pd.DataFrame, options: Options | None = None) -> Mapped:
     index = pd.RangeIndex(n)
     frame = pd.DataFrame(
         {
-            name: pd.Series(v.to_numpy(), index=index, dtype=v.dtype, copy=False)
+            name: pd.Series(v.array, index=index, dtype=v.dtype, copy=False)
             if isinstance(v, pd.Series)
             else v
             for name, v in canonical.items()

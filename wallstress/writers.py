@@ -273,9 +273,11 @@ def _check_suffix(out: Path) -> str:
 
 
 def _findings_for_writing(findings) -> pd.DataFrame:
+    """The findings as given: Categorical text columns are turned into text by each writer, a slice
+    at a time (at 10^6 studies the findings as plain text would be several hundred MB)."""
     if findings is None:
         return _findings.empty()
-    return _findings.as_text(findings)
+    return findings
 
 
 def _slug(name: str) -> str:
