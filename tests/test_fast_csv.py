@@ -178,3 +178,25 @@ def test_random_frames_read_back_like_pandas(tmp_path_factory, df):
     b = _read(ref, **opts)
     if len(b) == len(df) and b["t"].equals(a["t"]):
         pd.testing.assert_frame_equal(a, b)
+
+
+def test_whole_numbers_found_without_reading_the_text():
+    """``.0`` goes exactly where pyarrow's own text of a float is plain digits (reference: the
+    pyarrow formatter itself, pyarrow.compute.cast to string, read with a regular expression):
+    whole numbers across magnitudes, both signs, -0.0, non-whole, huge, tiny and missing values."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    from wallstress.fast_csv import _float_text
+
+    rng = np.random.default_rng(0)
+    parts = [np.array([0.0, -0.0, 5.0, 0.5, 1e9, 1e10 - 1, 1e10, 1e15, 2e20, 1e-7, np.nan])]
+    for lo, hi in ((0, 1e3), (1e3, 1e6), (1e6, 1e9), (1e9, 1e10), (1e10, 1e12), (1e12, 1e22)):
+        whole = rng.uniform(lo, hi, 20_000).round(0)
+        parts += [whole, -whole, rng.uniform(lo, hi, 2_000)]
+    values = pa.array(np.concatenate(parts), from_pandas=True)
+    text = pc.cast(values, pa.large_string())
+    digits = pc.fill_null(pc.match_substring_regex(text, r"^-?[0-9]+$"), False).to_pylist()
+    got = _float_text(values).to_pylist()
+    for t, d, g in zip(text.to_pylist(), digits, got, strict=True):
+        assert g == (t + ".0" if d else t)

@@ -231,13 +231,29 @@ def _float_column(arr: np.ndarray, whole_number: bool) -> pa.Array:
     return _float_text(values) if whole_number else values
 
 
+# below this magnitude pyarrow writes a whole float as plain digits (1e10 already as "1e+10";
+# checked in tests/test_fast_csv.py against its formatter)
+_PLAIN_WHOLE_BELOW = 1e10
+
+
 def _float_text(values: pa.Array) -> pa.Array:
-    """Shortest round-trip text of float64 values, ``.0`` added to whole numbers (nulls kept)."""
+    """Shortest round-trip text of float64 values, ``.0`` added to whole numbers (nulls kept).
+
+    A whole number below 1e10 in magnitude is found with numpy; the text of larger ones is
+    checked (its form, digits or exponent, depends on the formatter).
+    """
     text = pc.cast(values, pa.large_string())
-    whole = pc.match_substring_regex(text, r"^-?[0-9]+$")
+    arr = values.to_numpy(zero_copy_only=False)
+    with np.errstate(invalid="ignore"):
+        whole = np.isfinite(arr) & (arr == np.trunc(arr))
+        small = whole & (np.abs(arr) < _PLAIN_WHOLE_BELOW)
+    add = pa.array(small)
+    if (whole & ~small).any():
+        digits = pc.fill_null(pc.match_substring_regex(text, r"^-?[0-9]+$"), False)
+        add = pc.or_(add, digits)
     large = pa.large_string()
     dotted = pc.binary_join_element_wise(text, pa.scalar(".0", large), pa.scalar("", large))
-    return pc.if_else(whole, dotted, text)
+    return pc.if_else(add, dotted, text)
 
 
 def _as_text(values) -> pa.Array:

@@ -88,7 +88,9 @@ def text_cells(frame: pd.DataFrame) -> tuple[pa.ChunkedArray, np.ndarray]:
             is_str = _str_mask(vals)
             chunks.append(pa.array(np.where(is_str, vals, None), type=pa.large_string()))
         elif pd.api.types.is_string_dtype(s.dtype):
-            chunks.append(pa.array(s.array).cast(pa.large_string()))
+            arr = pa.array(s.array).cast(pa.large_string())
+            # the column's own chunks (a ChunkedArray passed as one chunk is read value by value)
+            chunks.extend(arr.chunks if isinstance(arr, pa.ChunkedArray) else [arr])
         else:
             chunks.append(pa.nulls(n, pa.large_string()))
     flat = pa.chunked_array(chunks, type=pa.large_string())
