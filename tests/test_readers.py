@@ -269,22 +269,6 @@ def test_header_only_returns_zero_rows(tmp_path):
     assert len(st.table) == 0 and list(st.table.columns) == bad_inputs.GOOD_HEADER
 
 
-def test_padding_check_agrees_with_arrow_trim():
-    """The reader skips trimming when no cell is padded; its test for padding must flag exactly the
-    cells that Arrow's utf8_trim_whitespace changes (reference: Apache Arrow compute, every
-    Unicode white-space code point up to U+3000 at either end)."""
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
-    from wallstress.grid_in import _PADDED
-
-    spaces = [chr(c) for c in range(0x3001) if chr(c).isspace()] + ["\u2028", "\u2029"]
-    texts = [f"{w}5" for w in spaces] + [f"5{w}" for w in spaces] + ["5", "5 5", "a\u00a0b"]
-    arr = pa.array(texts)
-    changed = [t != u for t, u in zip(texts, pc.utf8_trim_whitespace(arr).to_pylist(), strict=True)]
-    assert pc.match_substring_regex(arr, _PADDED).to_pylist() == changed
-
-
 def test_numbers_padded_or_not_read_alike(tmp_path):
     """' 4.8 ' and '4.8' are the same number (common practice, no source), with or without any
     padded cell in the file; whole-file parsing by Arrow matches Python's float()."""

@@ -30,6 +30,7 @@ from wallstress.grid_in import (
     _file_note,
     _frame_from_grid,
     cell_mask,
+    column_groups,
     text_cells,
     trimmed,
 )
@@ -219,11 +220,10 @@ def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataF
     n, k = table.shape
     if k == 0 or n == 0:
         return table, "."
-    width = max(1, GROUP_CELLS // n)
     converted: dict[int, np.ndarray] = {}
     comma = False
-    for start in range(0, k, width):
-        got, group_comma = _numbers_in(table.iloc[:, start : start + width], allow_comma)
+    for start, sub in column_groups(table):
+        got, group_comma = _numbers_in(sub, allow_comma)
         converted.update({start + j: v for j, v in got.items()})
         comma |= group_comma
     if not converted:

@@ -98,17 +98,26 @@ def text_cells(frame: pd.DataFrame) -> tuple[pa.ChunkedArray, np.ndarray]:
     return flat, mask
 
 
-# a cell that utf8_trim_whitespace would change: Unicode white space at either end (checked against
-# it for every white-space code point up to U+3000, tests/test_readers.py)
-_WS = r"[\s\pZ\x{85}\x{0b}\x{1c}-\x{1f}]"
-_PADDED = f"^{_WS}|{_WS}$"
+GROUP_CELLS = (
+    1 << 21
+)  # cells checked together: few Arrow calls for wide files, bounded memory for long
+
+
+def column_groups(frame: pd.DataFrame):
+    """``(first column position, sub-frame)`` for runs of columns of about ``GROUP_CELLS`` cells:
+    a 50 x 20,000 table is one group, a 10^6-row table one column per group."""
+    n, k = frame.shape
+    width = max(1, GROUP_CELLS // max(n, 1))
+    for start in range(0, k, width):
+        yield start, frame.iloc[:, start : start + width]
 
 
 def trimmed(flat):
-    """``utf8_trim_whitespace(flat)``, or ``flat`` itself when no cell is padded (the usual case:
-    no second copy of every cell)."""
-    if pc.any(pc.match_substring_regex(flat, _PADDED)).as_py():
-        return pc.utf8_trim_whitespace(flat)
+    """``utf8_trim_whitespace(flat)``, or ``flat`` itself when no cell was padded (the trimmed copy
+    is then dropped at once)."""
+    t = pc.utf8_trim_whitespace(flat)
+    if pc.any(pc.not_equal(pc.binary_length(t), pc.binary_length(flat))).as_py():
+        return t
     return flat
 
 
@@ -124,10 +133,11 @@ def _blank_to_nan(grid: pd.DataFrame, strip: bool = True) -> pd.DataFrame:
     """Empty (or, with ``strip``, whitespace-only) text cells -> NaN (text columns keep their dtype)."""
     if grid.shape[1] == 0 or grid.shape[0] == 0:
         return grid.astype(object) if grid.shape[1] else grid
-    flat, is_text = text_cells(grid)
-    if strip:
-        flat = trimmed(flat)
-    blank = cell_mask(pc.equal(flat, ""), grid.shape) | grid.isna().to_numpy()
+    masks = []
+    for _, sub in column_groups(grid):  # a group at a time: no copy of the whole table's text
+        flat, _ = text_cells(sub)
+        masks.append(cell_mask(pc.equal(trimmed(flat) if strip else flat, ""), sub.shape))
+    blank = np.hstack(masks) | grid.isna().to_numpy()
     if all(is_object_dtype(dt) for dt in grid.dtypes):
         arr = grid.to_numpy(dtype=object)
         if blank.any():
@@ -340,14 +350,17 @@ def _cell_findings(table: pd.DataFrame, error_cells=None) -> list:
     ]
     if not text_cols or len(table) == 0:
         return []
-    sub = table.iloc[:, text_cols]
-    flat, is_text = text_cells(sub)
-    shape = sub.shape
-    t = trimmed(flat)
-    err = np.zeros(shape, dtype=bool)
-    if cell_mask(pc.starts_with(t, "#"), shape).any():
-        err = cell_mask(pc.is_in(pc.utf8_upper(t), value_set=_ERRORS_ARROW), shape) & is_text
-    long = cell_mask(pc.greater(pc.utf8_length(t), MAX_CELL_CHARS), shape) & is_text
+    errs, longs = [], []
+    for _, sub in column_groups(table.iloc[:, text_cols]):
+        flat, is_text = text_cells(sub)
+        shape = sub.shape
+        t = trimmed(flat)
+        err = np.zeros(shape, dtype=bool)
+        if cell_mask(pc.starts_with(t, "#"), shape).any():
+            err = cell_mask(pc.is_in(pc.utf8_upper(t), value_set=_ERRORS_ARROW), shape) & is_text
+        errs.append(err)
+        longs.append(cell_mask(pc.greater(pc.utf8_length(t), MAX_CELL_CHARS), shape) & is_text)
+    err, long = np.hstack(errs), np.hstack(longs)
     parts = []
     for k in np.flatnonzero(err.any(axis=0) | long.any(axis=0)):
         j = text_cols[k]

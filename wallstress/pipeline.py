@@ -57,8 +57,9 @@ def analyse(df: pd.DataFrame, options: Options | None = None) -> pd.DataFrame:
     -------
     DataFrame
         The input columns, unchanged, followed by ``schema.OUTPUT_COLUMNS``; one row per input row, in
-        order. ``flags`` lists each row's finding codes. Use :func:`analyse_with_findings` for the
-        findings table and the methods record.
+        order. ``flags`` lists each row's finding codes. The text outputs (geometry, grades,
+        ``lv_mass_method``, ``edv_source``, ``flags``) are Categoricals of text. Use
+        :func:`analyse_with_findings` for the findings table and the methods record.
     """
     return analyse_with_findings(df, options).table
 
@@ -120,7 +121,7 @@ def _text(codes, names):
 def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, pd.DataFrame, dict]:
     """All measures from a validated canonical table, vectorised: (columns, findings, used).
 
-    Columns come as a dict (text columns built from codes, not object arrays); ``used`` records
+    Columns come as a dict (text columns as Categoricals built from codes); ``used`` records
     which formula and which coefficients each measure came from, for the methods record.
     """
     n = len(c)
