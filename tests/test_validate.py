@@ -4,7 +4,9 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+import pytest
 
+from wallstress.mapping import map_columns
 from wallstress.validate import validate
 
 
@@ -85,3 +87,23 @@ def test_input_not_mutated_and_never_raises_on_junk():
     c, f = validate(df)
     pd.testing.assert_frame_equal(df, before)
     assert len(c) == 4
+
+
+@pytest.mark.parametrize(
+    "ids, repeated",
+    [
+        ([0, np.nan, 5, 5], {2, 3}),  # a missing id is no repeat of id 0
+        ([np.nan, 0, np.nan], set()),
+        ([3, 1, 3, 2], {0, 2}),  # not in order
+        ([1, 2, 3, 4], set()),  # increasing: no repeat
+        (["1001", "01001", "1001"], {0, 2}),  # "01001" is another text than "1001"
+        (["7", "7.0", None, "7"], {0, 3}),
+    ],
+)
+def test_repeated_study_ids_whatever_their_form(ids, repeated):
+    """The same identifier text on two rows is a repeat; a missing one never is (common practice,
+    no source). Numeric ids are read as text ("1001.0" from a sheet is "1001") and compared."""
+    raw = pd.DataFrame({"study_id": ids, "sex": ["F"] * len(ids)})
+    m = map_columns(raw)
+    _, f = validate(m.canonical)
+    assert set(f.loc[f["code"] == "duplicate_study_id", "row"]) == repeated

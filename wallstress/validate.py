@@ -274,6 +274,8 @@ def _repeated_ids(sid: pd.Series) -> np.ndarray:
                 if key.size < 2 or bool((key[1:] > key[:-1]).all()):
                     return np.zeros(key.size, dtype=bool)
                 return pd.Series(key).duplicated(keep=False).to_numpy()
-            key = np.where(present, whole.fill_null(0).to_numpy(zero_copy_only=False), 0)
-            return pd.Series(key).duplicated(keep=False).to_numpy() & present
+            dup = np.zeros(present.size, dtype=bool)  # among the rows that have an id only
+            key = whole.drop_null().to_numpy(zero_copy_only=False)
+            dup[present] = pd.Series(key).duplicated(keep=False).to_numpy()
+            return dup
     return sid.duplicated(keep=False).to_numpy() & present
