@@ -282,3 +282,22 @@ def test_numbers_padded_or_not_read_alike(tmp_path):
     for t in got:
         assert t["LVIDd"].tolist() == [float("4.8"), float("5.2")]
         assert t["PWd"].tolist() == [float("0.9"), float("1e-3")]
+
+
+def test_number_parsing_fallback_keeps_gaps(monkeypatch):
+    """If Arrow refuses a column, Python's float() reads it instead (reference: float() itself),
+    empty cells staying NaN."""
+    import pyarrow as pa
+
+    import wallstress.csv_in as csv_in
+
+    cells = pa.chunked_array([pa.array(["1.5", None, "2e-3"], pa.large_string())])
+    fast = csv_in._parse_floats(cells)
+
+    def refuse(*args, **kwargs):
+        raise pa.ArrowInvalid("refused")
+
+    monkeypatch.setattr(csv_in.pc, "cast", refuse)
+    slow = csv_in._parse_floats(cells)
+    for got in (fast, slow):
+        assert got[0] == float("1.5") and np.isnan(got[1]) and got[2] == float("2e-3")

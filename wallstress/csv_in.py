@@ -204,11 +204,6 @@ _PLAIN_NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
 _COMMA_NUM = r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?"
 
 
-GROUP_CELLS = (
-    1 << 21
-)  # cells checked together: few Arrow calls for wide files, bounded memory for long
-
-
 def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataFrame, str]:
     """Columns whose every non-empty cell is a number become float64; others stay text.
 
@@ -268,7 +263,11 @@ def _parse_floats(text) -> np.ndarray:
     try:
         parsed = pc.cast(text, pa.float64())
     except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-        return text.to_numpy(zero_copy_only=False).astype(np.float64)
+        cells = np.asarray(text.to_numpy(zero_copy_only=False), dtype=object)
+        out = np.full(cells.size, np.nan)
+        present = np.array([c is not None for c in cells], dtype=bool)
+        out[present] = cells[present].astype(np.float64)
+        return out
     if isinstance(parsed, pa.ChunkedArray):
         parsed = parsed.combine_chunks() if parsed.num_chunks else pa.array([], pa.float64())
     return parsed.to_numpy(zero_copy_only=False)

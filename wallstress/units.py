@@ -278,10 +278,8 @@ _CANDIDATES_BY_QUANTITY: dict[str, tuple[str, ...]] = {
 }
 
 
-_CENTRAL = (0.15, 0.85)
-MEDIAN_SAMPLE = (
-    1 << 16
-)  # values a unit is inferred from, evenly spaced over a longer column  # central part of the typical range, on a log scale
+_CENTRAL = (0.15, 0.85)  # central part of the typical range, on a log scale
+MEDIAN_SAMPLE = 1 << 16  # values a unit is inferred from, evenly spaced over a longer column
 
 
 def candidate_units(field: str) -> tuple[str, ...]:
@@ -317,7 +315,7 @@ def infer_unit(field: str, values) -> InferredUnit:
     -----
     The ranges are screening limits (common practice, no source): an LVIDd median of 48 can only be
     mm, a height median of 1.75 only metres. A column of more than ``2 * MEDIAN_SAMPLE`` values is
-    judged by the median of about ``MEDIAN_SAMPLE`` values taken at even steps through it (the
+    judged by the median of ``MEDIAN_SAMPLE`` values taken at even steps through it (the
     reason says so): the median of 65,536 values lies within a fraction of a percentile of the
     whole column's, far inside the gaps between candidate units.
 
@@ -332,8 +330,8 @@ def infer_unit(field: str, values) -> InferredUnit:
     arr = np.asarray(values, dtype="float64").ravel()
     of = ""
     if arr.size > 2 * MEDIAN_SAMPLE:  # a registry column: the median of evenly spaced values
-        arr = arr[:: arr.size // MEDIAN_SAMPLE]
-        of = f" of {arr.size:,} evenly spaced values"
+        arr = arr[np.linspace(0, arr.size - 1, MEDIAN_SAMPLE).astype(np.int64)]
+        of = f" of {MEDIAN_SAMPLE:,} evenly spaced values"
     arr = arr[np.isfinite(arr) & (arr > 0)]
     cands = candidate_units(field)
     if arr.size == 0 or f.typical is None:
