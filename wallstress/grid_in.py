@@ -98,9 +98,8 @@ def text_cells(frame: pd.DataFrame) -> tuple[pa.ChunkedArray, np.ndarray]:
     return flat, mask
 
 
-GROUP_CELLS = (
-    1 << 21
-)  # cells checked together: few Arrow calls for wide files, bounded memory for long
+# cells checked together: few Arrow calls for a wide sheet, bounded memory for a long one
+GROUP_CELLS = 1 << 21
 
 
 def column_groups(frame: pd.DataFrame):
