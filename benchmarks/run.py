@@ -148,18 +148,16 @@ def _constants() -> dict:
             ]
     coef = {k: v.value for k, v in model_coefficients("mass_prediction").items()}
     line = {k: v.value for k, v in model_coefficients("midwall_stress_line").items()}
-    from wallstress.classify import GEOMETRY_8_NAMES  # labels only
+    from wallstress.classify import GEOMETRY_4_NAMES, GEOMETRY_8_NAMES  # labels only
 
-    return {"cut": cut, "grades": grades, "mass": coef, "line": line, "g8": list(GEOMETRY_8_NAMES)}
-
-
-GEOMETRY_4 = (
-    "",
-    "normal",
-    "concentric_remodelling",
-    "eccentric_hypertrophy",
-    "concentric_hypertrophy",
-)
+    return {
+        "cut": cut,
+        "grades": grades,
+        "mass": coef,
+        "line": line,
+        "g4": list(GEOMETRY_4_NAMES),
+        "g8": list(GEOMETRY_8_NAMES),
+    }
 
 
 def bare_all_measures(df: pd.DataFrame, k: dict) -> pd.DataFrame:
@@ -252,7 +250,7 @@ def bare_all_measures(df: pd.DataFrame, k: dict) -> pd.DataFrame:
             "lvmi_h27_g_m2_7": lvmi_h27,
             "lvmi_h_g_m": lvmi_h,
             "rwt": rwt,
-            "geometry": text(geometry, GEOMETRY_4),
+            "geometry": text(geometry, k["g4"]),
             "edv_ml": edv,
             "edv_source": text(np.where(np.isnan(edv), 0, 1), ["", "teichholz"]),
             "edv_index_ml_m2": edvi,

@@ -37,6 +37,8 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pa_csv
 
+from .findings import text_from_codes
+
 FAST_ENCODINGS: tuple[str, ...] = ("utf-8", "utf-8-sig")
 _BOM = b"\xef\xbb\xbf"
 
@@ -171,22 +173,21 @@ def arrow_table(df: pd.DataFrame, whole: set[int] | None = None) -> pa.Table:
     return pa.Table.from_arrays(arrays, names=names)
 
 
-def categorical_text(col: pd.Series) -> pa.Array | None:
-    """A Categorical of text as an Arrow text array (missing -> null), built in C; None otherwise."""
+def categorical_as_text(col: pd.Series) -> pa.Array | None:
+    """A Categorical of text as an Arrow text array (missing -> null); None for other categories.
+
+    The codes index the categories in C (:func:`wallstress.findings.text_from_codes`).
+    """
     cats = col.dtype.categories
     if pd.api.types.infer_dtype(cats, skipna=False) not in ("string", "empty"):
         return None
-    codes = col.array.codes
-    missing = codes < 0
-    idx = pa.array(codes.astype(np.int32), mask=missing if missing.any() else None)
-    dictionary = pa.array(cats.to_numpy(dtype=object), type=pa.large_string())
-    return pc.take(dictionary, idx)
+    return _as_text(text_from_codes(col.array.codes, cats.to_numpy(dtype=object)))
 
 
 def _arrow_column(col: pd.Series, whole_number: bool = False) -> pa.Array:
     dtype = col.dtype
     if isinstance(dtype, pd.CategoricalDtype):
-        text = categorical_text(col)
+        text = categorical_as_text(col)
         if text is not None:
             return text
         col = col.astype(object).where(col.notna(), None)

@@ -232,13 +232,7 @@ def _analyse_as_text(df: pd.DataFrame, options: Options) -> pd.DataFrame:
     table = analyse(df, options)
     text = pd.Series(["x"]).dtype
     ours = table.columns[df.shape[1] :]
-    return table.astype(
-        {
-            c: text
-            for c in ours
-            if table[c].dtype == object or isinstance(table[c].dtype, pd.CategoricalDtype)
-        }
-    )
+    return table.astype({c: text for c in ours if isinstance(table[c].dtype, pd.CategoricalDtype)})
 
 
 # --------------------------------------------------------------------------------------------------

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from . import findings as fnd
 from .schema import BY_NAME
@@ -255,9 +257,6 @@ def _repeated_ids(sid: pd.Series) -> np.ndarray:
     """
     present = sid.notna().to_numpy()
     if isinstance(sid.dtype, pd.StringDtype) and sid.dtype.storage == "pyarrow":
-        import pyarrow as pa
-        import pyarrow.compute as pc
-
         text = pa.array(sid.array)
         if isinstance(text, pa.ChunkedArray):
             text = text.combine_chunks()

@@ -62,7 +62,7 @@ import pyarrow.compute as pc
 from defusedxml import ElementTree as SafeET
 
 from .errors import OutputError
-from .fast_csv import _missing, categorical_text
+from .fast_csv import _missing, categorical_as_text
 from .sheet_bounds import col_letters
 
 EXCEL_MAX_ROWS = 1_048_576
@@ -799,7 +799,7 @@ def _prepare(col: pd.Series, header: str, sheet: str, date1904: bool, notes) -> 
     dtype = col.dtype
     where = f"sheet {sheet!r}, column {header!r}"
     if isinstance(dtype, pd.CategoricalDtype):
-        text = categorical_text(col)
+        text = categorical_as_text(col)
         if text is not None:
             return _text_column(text, header, where, notes)
         col = col.astype(object)
