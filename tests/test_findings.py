@@ -182,6 +182,26 @@ def test_flag_codes_equal_a_python_loop(seed, n_parts):
         assert fnd.flags_per_row(f, 30).tolist() == _flags_by_loop(f, 30)
 
 
+def test_flag_codes_with_many_codes_per_row_equal_a_python_loop():
+    """Rows with more codes than fit one 62-bit key (30 codes on a row) take the table path; the
+    same reference as above: one Python step per finding (common practice, no source)."""
+    rng = np.random.default_rng(3)
+    parts = [
+        fnd.make(
+            rng.choice(12, size=rng.integers(1, 12), replace=False),
+            code=f"c{k}",
+            severity="note",
+            message="m",
+        )
+        for k in range(30)
+    ]
+    parts.append(fnd.make(np.arange(12), code="c0", severity="note", message="again"))
+    f = fnd.concat(parts, categorical=True)
+    codes, texts = fnd.flag_codes(f, 12)
+    assert max(t.count(";") for t in texts) + 1 > 62 / np.log2(32)  # wide enough for that path
+    assert [texts[i] for i in codes] == _flags_by_loop(f, 12)
+
+
 def test_grade_codes_equal_per_value_rule_vs_lang_2015():
     """Lang RM et al., J Am Soc Echocardiogr 2015;28:1-39, Table 6 partitions of LVMI (women > 95
     mild, > 108 moderate, > 121 severe; men > 115, > 131, > 148 g/m2), through the bundled set;

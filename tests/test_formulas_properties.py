@@ -145,6 +145,42 @@ def test_non_positive_or_infinite_quantities_give_nan(name, bad_value):
         assert np.isnan(func(*bad, **kwargs)), f"{name}: {bad_value} at position {i}"
 
 
+@pytest.mark.parametrize("name", sorted(CASES))
+@pytest.mark.parametrize("bad_value", [np.nan, 0.0, -1.0, -np.inf, np.inf])
+def test_bad_value_in_an_array_blanks_only_its_row(name, bad_value):
+    """In an array, one bad value blanks its own row only; the valid rows keep their values
+    (NaN in, NaN out, row by row; common practice, no source). Arrays take the guards' fast path
+    (nothing to blank) and their slow path (something to blank), which scalars never reach."""
+    func, args, kwargs, positions = CASES[name]
+    expected = func(*args, **kwargs)
+    for i in positions:
+        arrays = [np.full(4, a) for a in args]
+        arrays[i][2] = bad_value
+        out = func(*arrays, **kwargs)
+        assert np.isnan(out[2]), f"{name}: {bad_value} at position {i}"
+        np.testing.assert_allclose(np.delete(out, 2), expected, rtol=1e-12)
+    clean = func(*[np.full(4, a) for a in args], **kwargs)
+    np.testing.assert_allclose(clean, expected, rtol=1e-12)
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_result_is_never_an_input_array(name):
+    """The result is the caller's own array: writing into it leaves every input unchanged (the
+    guards may hand back an input that needs no blanking; common practice, no source)."""
+    func, args, kwargs, _ = CASES[name]
+    arrays = [np.full(3, a) for a in args]
+    out = func(*arrays, **kwargs)
+    assert not any(np.shares_memory(out, a) for a in arrays), name
+
+
+def test_mean_of_one_reading_is_a_copy():
+    """One reading: its mean is the reading itself, as a new array (common practice, no source)."""
+    sbp = np.array([120.0, 130.0])
+    out = f.mean_of_readings(sbp)
+    np.testing.assert_array_equal(out, sbp)
+    assert not np.shares_memory(out, sbp)
+
+
 @settings(max_examples=30)
 @given(
     n=st.integers(1, 20),

@@ -12,6 +12,7 @@ from hypothesis import strategies as st
 from openpyxl.utils.datetime import from_excel
 
 from wallstress import schema
+from wallstress.cell_parse import SEX_DTYPE
 from wallstress.errors import InputError
 from wallstress.mapping import (
     map_columns,
@@ -134,7 +135,8 @@ def test_sex_numeric_and_ambiguous_not_guessed():
     assert {"sex_numeric_code", "sex_unreadable"} <= _codes(m)
     out, probs = parse_sex(pd.Series(["M", "H", "M"]))
     assert out.isna().all() and probs["sex_ambiguous"].all()
-    assert map_columns(pd.DataFrame({"sex": ["F", None]})).canonical["sex"].dtype == object
+    sex = map_columns(pd.DataFrame({"sex": ["F", None]})).canonical["sex"]
+    assert sex.dtype == SEX_DTYPE and sex.iloc[0] == "F" and pd.isna(sex.iloc[1])
 
 
 def test_dates_formats_and_serial():
@@ -305,6 +307,8 @@ def test_fuzz_map_columns(raw, unit_option):
             assert col.dtype == np.float64
         elif kind == "date":
             assert col.dtype == "datetime64[ns]"
+        elif kind == "sex":  # "F", "M" or missing, as a Categorical
+            assert col.dtype == SEX_DTYPE
         else:  # text: object, or pandas' text dtype for identifiers read from whole numbers
             assert col.dtype == object or isinstance(col.dtype, pd.StringDtype)
             assert all(isinstance(v, str) or pd.isna(v) for v in col)

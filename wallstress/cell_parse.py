@@ -178,8 +178,12 @@ def _numbers_from_text(t: pd.Series, quantity: str):
     return value, cell_factor, bad
 
 
+SEX_DTYPE = pd.CategoricalDtype(["F", "M"], ordered=False)
+
+
 def parse_sex(s: pd.Series) -> tuple[pd.Series, dict[str, np.ndarray]]:
-    """Sex codes -> "F"/"M"/NaN (object), with masks of the rows that could not be read.
+    """Sex codes -> "F"/"M"/NaN (a Categorical, ``SEX_DTYPE``), with masks of the rows that could
+    not be read.
 
     F/M, W(eiblich)/M, F/H (femme/homme) and words in several languages are read. "m" is taken as
     male unless the same column also uses "h" (then M could be the Spanish "mujer"): both are left
@@ -187,7 +191,7 @@ def parse_sex(s: pd.Series) -> tuple[pd.Series, dict[str, np.ndarray]]:
 
     Returns
     -------
-    sex : Series (object)
+    sex : Series (Categorical of "F", "M"; NaN where unread)
     problems : dict
         ``{"sex_ambiguous": mask, "sex_numeric_code": mask, "sex_unreadable": mask}``.
     """
@@ -205,8 +209,10 @@ def parse_sex(s: pd.Series) -> tuple[pd.Series, dict[str, np.ndarray]]:
     unreadable = ~missing & ~is_f & ~is_m & ~numeric
     # per distinct text: 0 unread (NaN), 1 "F", 2 "M"
     which = np.where(ambiguous, 0, np.where(is_m, 2, np.where(is_f, 1, 0)))
-    names = np.array([np.nan, "F", "M"], dtype=object)
-    out = pd.Series(names[_expand(which, codes, 0).astype(np.int64)], dtype=object)
+    # a Categorical of "F"/"M" (missing where unread): one small code per row, and the sex masks
+    # of every later step are integer comparisons instead of one text comparison per row
+    per_row = _expand(which, codes, 0).astype(np.int8) - np.int8(1)
+    out = pd.Series(pd.Categorical.from_codes(per_row, dtype=SEX_DTYPE, validate=False))
     return out, {
         "sex_ambiguous": _expand(ambiguous, codes, False).astype(bool),
         "sex_numeric_code": _expand(numeric, codes, False).astype(bool),

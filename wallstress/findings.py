@@ -303,6 +303,15 @@ def flags_per_row(findings: pd.DataFrame, n_rows: int) -> pd.Series:
     return pd.Series(np.asarray(texts, dtype=object)[codes], dtype=object)
 
 
+def _digits(key: int, base: int) -> list[int]:
+    """The base-``base`` digits of ``key``, least significant first."""
+    out = []
+    while key:
+        key, d = divmod(key, base)
+        out.append(d)
+    return out
+
+
 def flag_codes(findings: pd.DataFrame, n_rows: int) -> tuple[np.ndarray, list[str]]:
     """:func:`flags_per_row` as integer codes per row into a list of distinct flag texts ("" first)."""
     flag = np.zeros(n_rows, dtype=np.int64)
@@ -328,17 +337,20 @@ def flag_codes(findings: pd.DataFrame, n_rows: int) -> tuple[np.ndarray, list[st
         lengths = np.diff(np.r_[starts, rows.size])
         rank = np.arange(rows.size) - np.repeat(starts, lengths)
         width = int(lengths.max())
-        grid = np.full((starts.size, width), -1, dtype="int64")
-        grid[np.repeat(np.arange(starts.size), lengths), rank] = code_id
         base = n_codes + 1
-        if width * np.log2(base) < 62:  # each row's code sequence as one integer
-            key = (grid + 1) @ (base ** np.arange(width, dtype="int64"))
-            inverse, uniques = pd.factorize(key)
-            combos = grid[np.unique(inverse, return_index=True)[1]]
-        else:
-            combos, inverse = np.unique(grid, axis=0, return_inverse=True)
         names = np.asarray(code_names, dtype=object)
-        texts = [";".join(names[c[c >= 0]]) for c in combos]
+        if width * np.log2(base) < 62:
+            # each row's code sequence as one integer, digit k (base n_codes + 1) its k-th code
+            # plus one, summed per row; the few distinct sequences are read back from their digits
+            digit = (base ** np.arange(width, dtype="int64"))[rank]
+            key = np.add.reduceat((code_id + 1) * digit, starts)
+            inverse, uniques = pd.factorize(key)
+            texts = [";".join(names[d - 1] for d in _digits(int(k), base)) for k in uniques]
+        else:
+            grid = np.full((starts.size, width), -1, dtype="int64")
+            grid[np.repeat(np.arange(starts.size), lengths), rank] = code_id
+            combos, inverse = np.unique(grid, axis=0, return_inverse=True)
+            texts = [";".join(names[c[c >= 0]]) for c in combos]
         flag[rows[starts]] = 1 + np.asarray(inverse).ravel()
         texts_out += texts
     return flag, texts_out

@@ -6,8 +6,12 @@ the canonical copy; the result is the user's columns, unchanged and in order, fo
 
 from __future__ import annotations
 
+import os
+from concurrent.futures import ThreadPoolExecutor
+
 import numpy as np
 import pandas as pd
+from pandas.api.types import union_categoricals
 
 from . import __version__, classify
 from . import findings as fnd
@@ -18,11 +22,20 @@ from .options import Options
 from .references import load_set
 from .result import Analysis
 from .schema import OUTPUT_COLUMNS
-from .validate import validate
+from .validate import validate_parts
 
 LINEAR_METHODS = mass.LINEAR_MASS_METHODS
 AREA_METHODS = mass.AREA_MASS_METHODS
 ES_PRESSURE_CHOICES = (*stress.ES_PRESSURE_METHODS, "measured")
+
+# Large tables are computed in row partitions, one thread each: every measure is a function of its
+# own row, numpy releases the GIL inside its array loops, so the partitions run on separate cores
+# and the joined result is the same, value for value, as one pass over all rows. A partition holds
+# at least PARTITION_MIN_ROWS rows (below that the threads cost more than they save); the number of
+# threads is the CPUs this process may use, at most MAX_THREADS, or WALLSTRESS_THREADS if set.
+PARTITION_MIN_ROWS = 250_000
+MAX_THREADS = 8
+THREADS_ENV = "WALLSTRESS_THREADS"
 
 # Findings are built and handed out as Categoricals: their text columns repeat a few strings per
 # rule, so codes are far smaller and faster to merge; writers and the report turn them into text.
@@ -76,10 +89,12 @@ def analyse_with_findings(
     refset = load_set(options.reference)
     mapped = map_columns(df, options)
     labels = {m["field"]: m["source_column"] for m in mapped.mapping}
-    canonical, vfind = validate(mapped.canonical, labels)
+    canonical, vparts = validate_parts(mapped.canonical, labels)
     canonical.index = pd.RangeIndex(len(df))
-    out, cfind, used = _compute_columns(canonical, options, refset)
-    findings = fnd.concat([prior_findings, mapped.findings, vfind, cfind], categorical=True)
+    out, cparts, used = _compute_in_partitions(canonical, options, refset)
+    # every step's findings joined once, in step order (within a row: reader, mapping, validation,
+    # measures), sorted by row
+    findings = fnd.concat([prior_findings, mapped.findings, *vparts, *cparts], categorical=True)
     out["flags"] = fnd.categorical_text(*fnd.flag_codes(findings, len(df)))
     # copy=False: each output its own block (no stacking copy of ~30 float columns); an array that
     # is read-only (a view of an input) or already in another column is copied first
@@ -114,12 +129,76 @@ def _append(df: pd.DataFrame, outputs: pd.DataFrame) -> pd.DataFrame:
     return pd.concat([df, renamed], axis=1)
 
 
+def threads() -> int:
+    """Threads ``analyse`` may use: ``WALLSTRESS_THREADS`` if set (a whole number >= 1), else the
+    CPUs this process may run on, at most ``MAX_THREADS``."""
+    env = os.environ.get(THREADS_ENV, "").strip()
+    if env:
+        try:
+            n = int(env)
+        except ValueError:
+            n = 0
+        if n < 1:
+            raise ValueError(f"{THREADS_ENV}={env!r}: give a whole number of threads, 1 or more")
+        return n
+    try:
+        cpus = len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not on Linux
+        cpus = os.cpu_count() or 1
+    return max(1, min(cpus, MAX_THREADS))
+
+
+def _partition_bounds(n: int, workers: int) -> list[tuple[int, int]]:
+    """Row ranges [start, stop) of about equal size, each >= PARTITION_MIN_ROWS (one if n is small)."""
+    k = max(1, min(workers, n // PARTITION_MIN_ROWS))
+    edges = [n * i // k for i in range(k + 1)]
+    return list(zip(edges[:-1], edges[1:], strict=True))
+
+
+def _compute_in_partitions(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, dict]:
+    """:func:`_compute_columns` over row partitions in threads, joined in row order.
+
+    The first partition runs in the calling thread. Each output column is joined as soon as its
+    pieces are taken (the pieces are then freed), so the join holds at most one column twice.
+    """
+    bounds = _partition_bounds(len(c), threads())
+
+    def work(b):
+        return _compute_columns(c.iloc[b[0] : b[1]], o, refset)
+
+    if len(bounds) == 1:
+        return work(bounds[0])
+    with ThreadPoolExecutor(len(bounds) - 1, thread_name_prefix="wallstress") as pool:
+        later = [pool.submit(work, b) for b in bounds[1:]]
+        results = [work(bounds[0])] + [f.result() for f in later]
+    out: dict[str, object] = {}
+    for name in list(results[0][0]):
+        pieces = [r[0].pop(name) for r in results]
+        if isinstance(pieces[0], pd.Categorical):
+            if any(p.dtype != pieces[0].dtype for p in pieces[1:]):  # pragma: no cover - guard
+                out[name] = union_categoricals(pieces)
+            else:
+                codes = np.concatenate([p.codes for p in pieces])
+                out[name] = pd.Categorical.from_codes(codes, dtype=pieces[0].dtype, validate=False)
+        else:
+            out[name] = np.concatenate(pieces)
+        del pieces
+    parts = [
+        f.assign(row=f["row"].to_numpy() + start) if start else f
+        for (start, _), r in zip(bounds, results, strict=True)
+        for f in r[1]
+    ]
+    return out, parts, results[0][2]
+
+
 def _text(codes, names):
     return fnd.categorical_text(codes, names)
 
 
-def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, pd.DataFrame, dict]:
+def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, dict]:
     """All measures from a validated canonical table, vectorised: (columns, findings, used).
+
+    The findings come as one table per rule, in rule order (joined later with every step's).
 
     Columns come as a dict (text columns as Categoricals built from codes); ``used`` records
     which formula and which coefficients each measure came from, for the methods record.
@@ -129,8 +208,8 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, pd.Data
     def get(name):
         return c[name].to_numpy(dtype=float) if name in c.columns else np.full(n, np.nan)
 
-    sex = c["sex"].to_numpy(dtype=object) if "sex" in c.columns else np.full(n, None, dtype=object)
-    masks = classify.sex_masks(sex)
+    sex = c["sex"] if "sex" in c.columns else pd.Series(np.full(n, None, dtype=object))
+    masks = classify.sex_masks(sex)  # every sex-specific step below reads these masks only
     parts: list[pd.DataFrame] = []
     used: dict[str, dict] = {}
 
@@ -340,4 +419,4 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, pd.Data
         "verified": sorted({v.verified for v in coef.values()}),
     }
 
-    return out, fnd.concat(parts, categorical=True), used
+    return out, parts, used

@@ -165,7 +165,16 @@ class ReferenceSet:
         return min(up, key=lambda c: c.value) if up else None
 
     def coefficients(self, model: str) -> dict[str, Coefficient]:
-        """Model coefficients: this set's own rows override the bundled defaults."""
+        """Model coefficients: this set's own rows override the bundled defaults.
+
+        Read from the tables once per set and model (a new dict each call).
+        """
+        cache = self.__dict__.setdefault("_coefficients", {})
+        if model not in cache:
+            cache[model] = self._read_coefficients(model)
+        return dict(cache[model])
+
+    def _read_coefficients(self, model: str) -> dict[str, Coefficient]:
         out = model_coefficients(model) if model in set(_models()["model"]) else {}
         own = self.rows[(self.rows["kind"] == "coefficient") & (self.rows["measure"] == model)]
         for r in own.itertuples():

@@ -34,6 +34,15 @@ def validate(
     labels : dict, optional
         Canonical field -> the user's header, for the findings' ``column``.
     """
+    cleaned, parts = validate_parts(canonical, labels)
+    return cleaned, fnd.concat(parts, categorical=True)
+
+
+def validate_parts(
+    canonical: pd.DataFrame, labels: dict[str, str] | None = None
+) -> tuple[pd.DataFrame, list[pd.DataFrame]]:
+    """:func:`validate` with the findings as one table per rule, in rule order (not yet joined:
+    the pipeline joins every step's findings once)."""
     labels = labels or {}
     # numbers as float arrays; a rule that blanks values makes a new array (never writes into the
     # input), and the cleaned table is assembled from whole columns once at the end
@@ -245,7 +254,7 @@ def validate(
         index=canonical.index,
         copy=False,
     )
-    return cleaned, fnd.concat(parts, categorical=True)
+    return cleaned, parts
 
 
 def _repeated_ids(sid: pd.Series) -> np.ndarray:

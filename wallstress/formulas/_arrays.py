@@ -63,20 +63,45 @@ def restore(result: np.ndarray, template: object | None):
     return result
 
 
+def _within(x: np.ndarray, *, above_zero: bool, at_zero: bool) -> bool:
+    """True when every non-NaN value of ``x`` is finite and above (or at) zero: the guard would
+    change nothing. Two reductions without temporaries, cheaper than building the guarded copy."""
+    if x.ndim == 0 or x.size == 0 or x.dtype.kind != "f":
+        return False
+    lo, hi = np.fmin.reduce(x, axis=None), np.fmax.reduce(x, axis=None)  # NaN only if all NaN
+    if np.isnan(hi):  # every value NaN: nothing to blank
+        return True
+    if not hi < np.inf:  # +inf present
+        return False
+    if not above_zero:
+        return bool(lo > -np.inf)
+    return bool(lo >= 0) if at_zero else bool(lo > 0)
+
+
 def positive(x: np.ndarray) -> np.ndarray:
-    """``x`` where it is finite and > 0, NaN elsewhere (lengths, pressures, volumes, times)."""
+    """``x`` where it is finite and > 0, NaN elsewhere (lengths, pressures, volumes, times).
+
+    Returns ``x`` itself when nothing needs blanking (the formulas never write into their inputs);
+    a caller that hands the result out as its own copies it.
+    """
+    if _within(x, above_zero=True, at_zero=False):
+        return x
     with np.errstate(invalid="ignore"):
         return np.where(np.isfinite(x) & (x > 0), x, np.nan)
 
 
 def non_negative(x: np.ndarray) -> np.ndarray:
-    """``x`` where it is finite and >= 0, NaN elsewhere."""
+    """``x`` where it is finite and >= 0, NaN elsewhere (``x`` itself when nothing changes)."""
+    if _within(x, above_zero=True, at_zero=True):
+        return x
     with np.errstate(invalid="ignore"):
         return np.where(np.isfinite(x) & (x >= 0), x, np.nan)
 
 
 def finite(x: np.ndarray) -> np.ndarray:
-    """``x`` where it is finite, NaN elsewhere (+/-inf becomes NaN)."""
+    """``x`` where it is finite, NaN elsewhere (+/-inf becomes NaN; ``x`` itself when none)."""
+    if _within(x, above_zero=False, at_zero=False):
+        return x
     return np.where(np.isfinite(x), x, np.nan)
 
 

@@ -227,7 +227,8 @@ def es_pressure_mmhg(sbp_mmhg, dbp_mmhg=None, method: str = "cuff_sbp"):
     else:
         (sbp,), template = as_arrays(sbp_mmhg)
         sbp = positive(sbp)
-        out = sbp if method == "cuff_sbp" else _ES_PRESSURE_SBP_FACTOR * sbp
+        # a copy: the guard may hand back the input itself, and the result is the caller's own
+        out = np.array(sbp) if method == "cuff_sbp" else _ES_PRESSURE_SBP_FACTOR * sbp
     return restore(out, template)
 
 
@@ -260,7 +261,7 @@ def mean_of_readings(*readings):
         raise ValueError("mean_of_readings needs at least one reading; pass e.g. sbp_1, sbp_2")
     arrays, template = as_arrays(*readings)
     if len(arrays) == 1:  # one reading: the mean is the reading itself
-        return restore(positive(arrays[0]), template)
+        return restore(np.array(positive(arrays[0])), template)  # a copy, never the input
     stacked = np.stack(np.broadcast_arrays(*[positive(a) for a in arrays]))
     present = np.isfinite(stacked)
     count = present.sum(axis=0)
