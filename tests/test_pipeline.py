@@ -160,3 +160,28 @@ def test_inappropriate_mass_is_a_note_above_128_pct():
     assert set(f["severity"]) == {"note"}
     over = a.outputs["lv_mass_appropriateness_pct"] > 128
     assert set(f["row"]) == set(np.flatnonzero(over.to_numpy()))
+
+
+def test_row_partitions_on_threads_equal_one_pass(monkeypatch):
+    """Every measure is a function of its own row (the formulas' definitions; common practice, no
+    source): partitions on three threads give the same table and findings as one pass."""
+    from wallstress import pipeline
+
+    rng = np.random.default_rng(11)
+    rows = [canonical_row() for _ in range(60)]
+    df = pd.DataFrame(rows)
+    df["lvidd_cm"] = rng.uniform(3.5, 7.0, len(df))
+    df["pwd_cm"] = rng.uniform(0.6, 1.6, len(df))
+    df.loc[::7, "sex"] = None
+    df.loc[::5, "lvids_cm"] = 9.0  # not below LVIDd: a finding on some rows of every partition
+    monkeypatch.setenv("WALLSTRESS_THREADS", "1")
+    one = wallstress.analyse_with_findings(df)
+    monkeypatch.setattr(pipeline, "PARTITION_MIN_ROWS", 20)
+    monkeypatch.setenv("WALLSTRESS_THREADS", "3")
+    assert len(pipeline._partition_bounds(len(df), pipeline.threads())) == 3
+    three = wallstress.analyse_with_findings(df)
+    pd.testing.assert_frame_equal(one.table, three.table)
+    pd.testing.assert_frame_equal(one.findings, three.findings)
+    monkeypatch.setenv("WALLSTRESS_THREADS", "zero")
+    with pytest.raises(ValueError, match="WALLSTRESS_THREADS"):
+        pipeline.threads()
