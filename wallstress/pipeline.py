@@ -174,12 +174,8 @@ def _compute_in_partitions(c: pd.DataFrame, o: Options, refset) -> tuple[dict, l
     out: dict[str, object] = {}
     for name in list(results[0][0]):
         pieces = [r[0].pop(name) for r in results]
-        if isinstance(pieces[0], pd.Categorical):
-            if any(p.dtype != pieces[0].dtype for p in pieces[1:]):  # pragma: no cover - guard
-                out[name] = union_categoricals(pieces)
-            else:
-                codes = np.concatenate([p.codes for p in pieces])
-                out[name] = pd.Categorical.from_codes(codes, dtype=pieces[0].dtype, validate=False)
+        if isinstance(pieces[0], pd.Categorical):  # same categories: the codes are joined
+            out[name] = union_categoricals(pieces)
         else:
             out[name] = np.concatenate(pieces)
         del pieces

@@ -127,6 +127,7 @@ class ReferenceSet:
         self.name = name
         self.rows = rows
         self.path = path
+        self._coefficients: dict[str, dict[str, Coefficient]] = {}  # model -> its coefficients
         settings = {r.measure: _text(r.note) for r in rows[rows["kind"] == "setting"].itertuples()}
         self.title = settings.get("title", name)
         mass_index = settings.get("geometry_mass_index", "")
@@ -169,10 +170,9 @@ class ReferenceSet:
 
         Read from the tables once per set and model (a new dict each call).
         """
-        cache = self.__dict__.setdefault("_coefficients", {})
-        if model not in cache:
-            cache[model] = self._read_coefficients(model)
-        return dict(cache[model])
+        if model not in self._coefficients:
+            self._coefficients[model] = self._read_coefficients(model)
+        return dict(self._coefficients[model])
 
     def _read_coefficients(self, model: str) -> dict[str, Coefficient]:
         out = model_coefficients(model) if model in set(_models()["model"]) else {}
