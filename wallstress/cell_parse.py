@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pyarrow as pa
+import pyarrow.compute as pc
 
 from wallstress import units
 
@@ -96,13 +97,81 @@ def _factorize(t: pd.Series) -> tuple[np.ndarray, pd.Series]:
     return codes, pd.Series(np.asarray(uniq, dtype=object), dtype="str")
 
 
+def _arrow_text(s: pd.Series) -> pa.Array | None:
+    """The column as one Arrow string array when pandas already holds it so (``str`` dtype), else
+    None."""
+    if not isinstance(s.dtype, pd.StringDtype) or s.dtype.storage != "pyarrow":
+        return None
+    arr = pa.array(s.array)
+    if isinstance(arr, pa.ChunkedArray):
+        arr = arr.combine_chunks()
+    return arr if pa.types.is_large_string(arr.type) or pa.types.is_string(arr.type) else None
+
+
+def _single_byte_codes(arr: pa.Array) -> tuple[np.ndarray, list[str]] | None:
+    """Codes and distinct texts of a string array whose every present value is one byte long
+    (a sex column of F/M, a code column of digits), read off the data buffer without hashing a
+    string per row; None when any value is longer or empty."""
+    n = len(arr)
+    if n == 0:
+        return None
+    lengths = pc.binary_length(arr)
+    lo, hi = pc.min_max(lengths).values()
+    if lo.as_py() != 1 or hi.as_py() != 1:  # also None when every value is missing
+        return None
+    offset_type = np.int64 if pa.types.is_large_string(arr.type) else np.int32
+    _, offsets, data = arr.buffers()
+    starts = np.frombuffer(offsets, dtype=offset_type)[arr.offset : arr.offset + n]
+    missing = arr.is_null().to_numpy(zero_copy_only=False) if arr.null_count else None
+    if missing is not None:  # a missing value's offset may point past the data
+        starts = np.where(missing, 0, starts)
+    byte = np.frombuffer(data, dtype=np.uint8)[starts].astype(np.int16)  # one byte: ASCII
+    if missing is not None:
+        byte[missing] = -1
+    present = np.flatnonzero(np.bincount(byte[byte >= 0], minlength=128))
+    lookup = np.full(129, -1, dtype=np.int64)  # byte -> code; index -1 (missing) stays -1
+    lookup[present] = np.arange(present.size)
+    return lookup[byte], [chr(b) for b in present]
+
+
+def factorize_text(s: pd.Series) -> tuple[np.ndarray, pd.Series]:
+    """Codes (-1 for missing) into the distinct stripped texts of a column, as
+    ``_factorize(_as_text(s))`` gives them.
+
+    A column already held as Arrow text is factorized before stripping (stripping is a function of
+    the text, so the result is the same) and a column of one-byte values without hashing; other
+    columns go through ``_as_text``, which tells 1, 1.0 and "1" apart by their text.
+    """
+    arr = _arrow_text(s)
+    if arr is None:
+        return _factorize(_as_text(s))
+    fast = _single_byte_codes(arr)
+    if fast is not None:
+        codes, texts = fast
+        raw = pd.Series(texts, dtype="str")
+    else:
+        codes, uniq = pd.factorize(s, use_na_sentinel=True)
+        raw = pd.Series(np.asarray(uniq, dtype=object), dtype="str")
+    # distinct raw texts may strip to the same text (" F" and "F"): merge their codes
+    stripped = raw.str.strip()
+    merged, uniq = pd.factorize(stripped, use_na_sentinel=True)
+    codes = np.asarray(codes)
+    if len(uniq) != len(raw):
+        codes = _expand(merged, codes, -1)
+    return codes, pd.Series(np.asarray(uniq, dtype=object), dtype="str")
+
+
 def _expand(values: np.ndarray, codes: np.ndarray, fill) -> np.ndarray:
-    out = np.asarray(values)[np.where(codes >= 0, codes, 0)] if len(values) else None
-    if out is None:
-        return np.full(len(codes), fill, dtype=np.asarray(values).dtype if len(values) else object)
-    out = out.copy()
-    out[codes < 0] = fill
-    return out
+    """``values[codes]`` per row, ``fill`` where the code is -1 (one gather: the fill is appended
+    as the last value, which index -1 takes)."""
+    values = np.asarray(values)
+    if values.size == 0:  # every code is -1
+        return np.full(
+            len(codes), fill, dtype=object if values.dtype.kind in "OUS" else values.dtype
+        )
+    if values.dtype.kind in "OUS":
+        values = values.astype(object)
+    return np.append(values, np.asarray([fill], dtype=values.dtype))[codes]
 
 
 def _is_missing_text(t: pd.Series) -> np.ndarray:
@@ -196,7 +265,7 @@ def parse_sex(s: pd.Series) -> tuple[pd.Series, dict[str, np.ndarray]]:
         ``{"sex_ambiguous": mask, "sex_numeric_code": mask, "sex_unreadable": mask}``.
     """
     # each distinct text is read once (a column of 10^6 rows holds a handful of spellings)
-    codes, t = _factorize(_as_text(s))
+    codes, t = factorize_text(s)
     low = t.str.lower().str.rstrip(".")
     missing = _is_missing_text(t)
     is_f = low.isin(_FEMALE).to_numpy()
@@ -211,12 +280,17 @@ def parse_sex(s: pd.Series) -> tuple[pd.Series, dict[str, np.ndarray]]:
     which = np.where(ambiguous, 0, np.where(is_m, 2, np.where(is_f, 1, 0)))
     # a Categorical of "F"/"M" (missing where unread): one small code per row, and the sex masks
     # of every later step are integer comparisons instead of one text comparison per row
-    per_row = _expand(which, codes, 0).astype(np.int8) - np.int8(1)
+    per_row = _expand(which.astype(np.int8) - np.int8(1), codes, np.int8(-1))
     out = pd.Series(pd.Categorical.from_codes(per_row, dtype=SEX_DTYPE, validate=False))
+
+    # a mask per problem, spread over the rows only when some distinct text has it
+    def per_text(mask):
+        return _expand(mask, codes, False) if mask.any() else np.zeros(len(codes), dtype=bool)
+
     return out, {
-        "sex_ambiguous": _expand(ambiguous, codes, False).astype(bool),
-        "sex_numeric_code": _expand(numeric, codes, False).astype(bool),
-        "sex_unreadable": _expand(unreadable, codes, False).astype(bool),
+        "sex_ambiguous": per_text(ambiguous),
+        "sex_numeric_code": per_text(numeric),
+        "sex_unreadable": per_text(unreadable),
     }
 
 

@@ -277,10 +277,34 @@ def _short(v: object, limit: int = 60) -> str:
     return text if len(text) <= limit else text[: limit - 3] + "..."
 
 
+def _plain_number_dtype(dtype) -> bool:
+    """Integers or floats (not bool, not complex): read as they are, no text parsing."""
+    return (
+        pd.api.types.is_numeric_dtype(dtype)
+        and not pd.api.types.is_bool_dtype(dtype)
+        and not pd.api.types.is_complex_dtype(dtype)
+    )
+
+
+def _finite_or_nan(x: np.ndarray) -> bool:
+    """No +/-inf in ``x`` (NaN allowed): two reductions, no temporary array."""
+    if x.size == 0:
+        return True
+    lo, hi = np.fmin.reduce(x), np.fmax.reduce(x)  # NaN only when every value is NaN
+    return bool(np.isnan(hi) or (-np.inf < lo and hi < np.inf))
+
+
 def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_option: str):
     parts = []
     q = fld.quantity
-    value, cell_factor, bad = parse_numbers(s, q)
+    if _plain_number_dtype(s.dtype):  # numbers already (the usual case): no text to read
+        value = s.to_numpy(dtype="float64", na_value=np.nan)
+        cell_factor = bad = None
+        if not _finite_or_nan(value):  # inf is not a measurement
+            bad = np.isinf(value)
+            value = np.where(bad, np.nan, value)
+    else:
+        value, cell_factor, bad = parse_numbers(s, q)
     header_unit = _header_unit(header, fld)
     if header_unit is not None and how != "canonical name":
         unit_from, basis = header_unit, "header"
@@ -291,8 +315,9 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
     else:
         unit_from, basis = None, "inferred"
 
-    plain = np.isnan(cell_factor)
-    all_plain = bool(plain.all())  # no cell states its own unit (the usual case): no masking copies
+    plain = None if cell_factor is None else np.isnan(cell_factor)
+    # no cell states its own unit (the usual case): no masking copies
+    all_plain = plain is None or bool(plain.all())
     plain_values = value if all_plain else value[plain]
     if unit_from is None:
         guess = units.infer_unit(fld.name, plain_values)
@@ -340,7 +365,8 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
     with np.errstate(invalid="ignore", over="ignore"):
         internal = value * (col_factor if all_plain else np.where(plain, col_factor, cell_factor))
     internal = np.asarray(internal, dtype="float64")  # always a new array: value may be the user's
-    internal[~np.isfinite(internal)] = np.nan
+    if not _finite_or_nan(internal):  # a conversion that overflowed
+        internal[~np.isfinite(internal)] = np.nan
     if not all_plain:
         parts.append(
             fnd.make(
@@ -353,7 +379,7 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
                 "unit (e.g. '4.8 cm'); each was converted with its own unit.",
             )
         )
-    if bad.any():
+    if bad is not None and bad.any():
         rows = np.flatnonzero(bad)
         parts.append(
             fnd.make(

@@ -179,11 +179,17 @@ def _compute_in_partitions(c: pd.DataFrame, o: Options, refset) -> tuple[dict, l
         else:
             out[name] = np.concatenate(pieces)
         del pieces
-    parts = [
-        f.assign(row=f["row"].to_numpy() + start) if start else f
-        for (start, _), r in zip(bounds, results, strict=True)
-        for f in r[1]
-    ]
+    parts, seen = [], set()
+    for (start, _), r in zip(bounds, results, strict=True):
+        for f in r[1]:
+            rows = f["row"].to_numpy()
+            if (rows < 0).all():  # a finding about a column: once, however many partitions say it
+                key = tuple(map(str, f[["code", "column", "field", "message"]].iloc[0]))
+                if key not in seen:
+                    seen.add(key)
+                    parts.append(f)
+            else:
+                parts.append(f.assign(row=rows + start) if start else f)
     return out, parts, results[0][2]
 
 
@@ -294,14 +300,21 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, d
         np.where(have_meas, 1, np.where(np.isnan(edv_t), 0, 2)).astype(np.int8),
         ["", "measured", "teichholz"],
     )
-    flag(
-        ~have_meas & ~np.isnan(edv_t),
-        "edv_from_teichholz",
-        "note",
-        "End-diastolic volume estimated by Teichholz from LVIDd (no measured volume): volume-based "
-        "classes are less reliable than with biplane volumes.",
-        "edv_ml",
-    )
+    # one note for the column, not one per row: where no volume is measured (most M-mode lists)
+    # it would sit on every row and hide the flags that matter; edv_source names each row's source
+    if (~have_meas & ~np.isnan(edv_t)).any():
+        parts.append(
+            fnd.make(
+                [-1],
+                code="edv_from_teichholz",
+                severity="note",
+                message="End-diastolic volume was estimated by Teichholz from LVIDd on the rows "
+                "without a measured volume (edv_source 'teichholz'): their volume-based classes "
+                "(geometry_8, EDV index, concentricity) are less reliable than with biplane volumes.",
+                column="edv_ml",
+                field="edv_ml",
+            )
+        )
     with np.errstate(invalid="ignore", divide="ignore"):
         out["edv_index_ml_m2"] = edv / bsa
     out["concentricity_g_ml23"] = mass.concentricity_g_ml23(lvm, edv)

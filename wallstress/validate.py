@@ -213,8 +213,12 @@ def validate_parts(
         )
     else:
         s = out["sex"]
+        if isinstance(s.dtype, pd.CategoricalDtype) and set(s.cat.categories) <= {"F", "M"}:
+            unknown = s.array.codes < 0  # the mapped column (cell_parse.SEX_DTYPE): no text compare
+        else:
+            unknown = ~s.isin(["F", "M"]).to_numpy()
         rule(
-            ~s.isin(["F", "M"]).to_numpy(),
+            unknown,
             "sex_missing",
             "warning",
             "Sex missing or unreadable: sex-specific classes and grades left empty (never guessed).",
@@ -257,6 +261,36 @@ def validate_parts(
     return cleaned, parts
 
 
+def _canonical_integers(text: pa.Array) -> bool:
+    """True when every present text, already read by Arrow as an integer (an optional minus sign
+    and digits), is written plainly ("1001", "-7", "0"; not "01001" or "-0"): then equal integers
+    mean equal texts.
+
+    Of the spellings Arrow reads, the plain one is the one whose digits do not start with a zero
+    (unless it is "0" itself): two bytes per text are read, instead of writing every integer back
+    as text and comparing.
+    """
+    n = len(text)
+    if n == 0 or text.null_count == n:
+        return True
+    offset_type = np.int64 if pa.types.is_large_string(text.type) else np.int32
+    _, offsets, data = text.buffers()
+    starts = np.frombuffer(offsets, dtype=offset_type)[text.offset : text.offset + n + 1]
+    length = np.diff(starts)
+    byte = np.frombuffer(data, dtype=np.uint8)
+    if text.null_count:  # a missing value has length 0 here; it has no spelling to check
+        keep = ~text.is_null().to_numpy(zero_copy_only=False)
+        starts, length = starts[:-1][keep], length[keep]
+    else:
+        starts = starts[:-1]
+    first = byte[starts]  # every present text has at least one digit
+    minus = first == ord("-")
+    second = byte[np.where(minus, starts + 1, starts)]  # the first digit
+    lead_zero = second == ord("0")
+    digits = length - minus
+    return not bool((lead_zero & ((digits > 1) | minus)).any())
+
+
 def _repeated_ids(sid: pd.Series) -> np.ndarray:
     """True on every row whose identifier (text, NaN for none) appears on another row too.
 
@@ -273,10 +307,7 @@ def _repeated_ids(sid: pd.Series) -> np.ndarray:
             whole = pc.cast(text, pa.int64())
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             whole = None
-        if (
-            whole is not None
-            and pc.all(pc.equal(pc.cast(whole, text.type), text)).as_py() is not False
-        ):
+        if whole is not None and _canonical_integers(text):
             key = whole.to_numpy(zero_copy_only=False)
             if present.all():
                 if key.size < 2 or bool((key[1:] > key[:-1]).all()):
