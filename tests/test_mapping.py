@@ -309,8 +309,10 @@ def test_fuzz_map_columns(raw, unit_option):
             assert col.dtype == "datetime64[ns]"
         elif kind == "sex":  # "F", "M" or missing, as a Categorical
             assert col.dtype == SEX_DTYPE
-        else:  # text: object, or pandas' text dtype for identifiers read from whole numbers
-            assert col.dtype == object or isinstance(col.dtype, pd.StringDtype)
+        elif col.dtype == "Int64":  # identifiers read from whole numbers
+            assert raw[name].dtype.kind in "iuf"
+        else:  # identifiers as text
+            assert col.dtype == object
             assert all(isinstance(v, str) or pd.isna(v) for v in col)
     if len(m.findings):
         assert m.findings["row"].between(-1, max(len(raw) - 1, -1)).all()

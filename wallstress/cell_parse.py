@@ -295,30 +295,40 @@ def parse_sex(s: pd.Series) -> tuple[pd.Series, dict[str, np.ndarray]]:
 
 
 def parse_ids(s: pd.Series) -> pd.Series:
-    """Identifiers as text (NaN for empty); 1001.0 read from a sheet becomes "1001".
+    """Identifiers, exactly as written; NaN (or <NA>) for empty.
 
-    A column of whole numbers comes back in pandas' text dtype (built by Arrow, no Python string
-    per row); other columns as object text.
+    A column of whole numbers (1001, or 1001.0 as a sheet stores it) comes back as pandas'
+    nullable ``Int64``: the number is the identifier, and ids compare and group as integers
+    without one text per row. Any other column comes back as object text, 1001.0 in it written
+    "1001".
     """
-    n = len(s)
     if pd.api.types.is_numeric_dtype(s.dtype) and not pd.api.types.is_bool_dtype(s.dtype):
+        if s.dtype.kind == "i" or (s.dtype.kind == "u" and s.dtype.itemsize < 8):  # exact
+            return s.astype("Int64").reset_index(drop=True)
         v = s.to_numpy(dtype="float64", na_value=np.nan)
         integral = np.isfinite(v) & (np.floor(v) == v) & (np.abs(v) < 2**53)
-        other = np.isfinite(v) & ~integral
-        if not other.any():
+        if not (np.isfinite(v) & ~integral).any():
             whole = np.where(integral, v, 0).astype("int64")
-            text = pa.array(whole, mask=~integral).cast(pa.large_string())
-            return pd.Series(pd.array(text, dtype=pd.StringDtype("pyarrow", na_value=np.nan)))
-        out = np.full(n, np.nan, dtype=object)
-        if integral.any():
-            out[integral] = v[integral].astype("int64").astype(str).astype(object)
-        out[other] = pd.Series(v[other]).astype(str).to_numpy(dtype=object)
-        return pd.Series(out, dtype=object)
+            return pd.Series(pd.arrays.IntegerArray(whole, ~integral))
+        return pd.Series(_ids_as_text(v), dtype=object)
+    n = len(s)
     arr = s.to_numpy(dtype=object)
     is_float = np.fromiter((type(x) is float for x in arr), dtype=bool, count=n)
     t = _as_text(s).reset_index(drop=True)
     if is_float.any():
-        fl = pd.Series(arr[is_float], dtype="float64")
-        t[is_float] = parse_ids(fl).to_numpy()
+        t[is_float] = _ids_as_text(arr[is_float].astype("float64"))
     t = t.astype(object).where(t.notna() & (t != ""), np.nan)
     return pd.Series(t.to_numpy(dtype=object), dtype=object)
+
+
+def _ids_as_text(v: np.ndarray) -> np.ndarray:
+    """Numbers as identifier text: whole numbers without ".0" ("1001"), others as Python writes
+    them, NaN for missing (object array)."""
+    integral = np.isfinite(v) & (np.floor(v) == v) & (np.abs(v) < 2**53)
+    other = np.isfinite(v) & ~integral
+    out = np.full(v.size, np.nan, dtype=object)
+    if integral.any():
+        out[integral] = v[integral].astype("int64").astype(str).astype(object)
+    if other.any():
+        out[other] = pd.Series(v[other]).astype(str).to_numpy(dtype=object)
+    return out

@@ -249,9 +249,9 @@ def categorical_text(codes, names) -> pd.Categorical:
     names = [str(x) for x in names]
     distinct = list(dict.fromkeys(names))
     codes = np.asarray(codes)
-    if len(distinct) != len(names):
-        remap = np.array([distinct.index(x) for x in names], dtype=np.int64)
-        codes = np.where(codes >= 0, remap[np.where(codes >= 0, codes, 0)], -1)
+    if len(distinct) != len(names):  # one gather; code -1 takes the appended -1
+        remap = np.array([distinct.index(x) for x in names] + [-1], dtype=np.int64)
+        codes = remap[codes]
     # categories in pandas' text dtype, as a parquet file read back gives them
     dtype = pd.CategoricalDtype(pd.Index(distinct, dtype=_TEXT_DTYPE), ordered=False)
     return _categorical(codes, distinct, dtype)

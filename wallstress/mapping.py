@@ -78,8 +78,9 @@ class Mapped:
     ----------
     canonical : DataFrame
         RangeIndex 0..n-1 (positions of the input rows); one column per canonical field found:
-        numbers float64 in internal units, ``sex`` "F"/"M"/NaN (object), ``study_date``
-        datetime64[ns] (NaT where unreadable), ids str with NaN for empty (object).
+        numbers float64 in internal units, ``sex`` a Categorical of "F"/"M" (NaN where unread), ``study_date``
+        datetime64[ns] (NaT where unreadable), ids nullable ``Int64`` when the column holds whole
+        numbers only, else text (object) with NaN for empty.
     mapping : list of dict
         One dict per mapped column: ``source_column``, ``field``, ``unit_from``, ``unit_basis``
         (one of ``UNIT_BASES``; "" for non-numeric fields), ``factor``.
@@ -365,7 +366,8 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
     with np.errstate(invalid="ignore", over="ignore"):
         internal = value * (col_factor if all_plain else np.where(plain, col_factor, cell_factor))
     internal = np.asarray(internal, dtype="float64")  # always a new array: value may be the user's
-    if not _finite_or_nan(internal):  # a conversion that overflowed
+    # finite values times a factor of at most 1 stay finite; a larger factor may overflow
+    if (not all_plain or col_factor > 1) and not _finite_or_nan(internal):
         internal[~np.isfinite(internal)] = np.nan
     if not all_plain:
         parts.append(

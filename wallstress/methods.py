@@ -238,13 +238,21 @@ def _formula_rows(used: dict) -> list[dict]:
     return rows
 
 
+def _rows_with(findings, severities: tuple[str, ...], n_rows: int) -> int:
+    """How many rows have at least one finding of these severities (no copy of the table)."""
+    rows = findings["row"].to_numpy(dtype="int64")
+    hit = findings["severity"].isin(severities).to_numpy(dtype=bool) & (rows >= 0)
+    seen = np.zeros(max(n_rows, int(rows.max(initial=-1)) + 1), dtype=bool)
+    seen[rows[hit]] = True
+    return int(seen.sum())
+
+
 def build_methods(
     options, refset, used: dict, mapped, findings, n_rows: int, *, version: str
 ) -> dict:
     """Assemble the methods record of one run (plain, JSON-serialisable types only)."""
-    rowwise = findings[findings["row"] >= 0]
-    errors = rowwise.loc[rowwise["severity"] == "error", "row"].nunique()
-    flagged = rowwise.loc[rowwise["severity"].isin(["error", "warning"]), "row"].nunique()
+    errors = _rows_with(findings, ("error",), n_rows)
+    flagged = _rows_with(findings, ("error", "warning"), n_rows)
     unverified = [
         f"{r['measure']} {r.get('sex', '')} {r.get('grade', '')}: {r['value']} ({r['source']}; {r['verified']})".replace(
             "  ", " "

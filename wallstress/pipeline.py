@@ -210,6 +210,9 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, d
     def get(name):
         return c[name].to_numpy(dtype=float) if name in c.columns else np.full(n, np.nan)
 
+    def nothing():  # the result of a formula whose input column is absent: no arithmetic on NaN
+        return np.full(n, np.nan)
+
     sex = c["sex"] if "sex" in c.columns else pd.Series(np.full(n, None, dtype=object))
     masks = classify.sex_masks(sex)  # every sex-specific step below reads these masks only
     parts: list[pd.DataFrame] = []
@@ -292,17 +295,24 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, d
     # volumes (measured where present, else Teichholz)
     edv_t = function.teichholz_volume_ml(lvidd)
     esv_t = function.teichholz_volume_ml(lvids)
-    edv_meas, esv_meas = get("lvedv_ml"), get("lvesv_ml")
-    have_meas = ~np.isnan(edv_meas)
-    edv = np.where(have_meas, edv_meas, edv_t)
+    sv_t = edv_t - esv_t
+    have_t = ~np.isnan(edv_t)
+    if "lvedv_ml" in c.columns:
+        edv_meas = get("lvedv_ml")
+        have_meas = ~np.isnan(edv_meas)
+        edv = np.where(have_meas, edv_meas, edv_t)
+        # 0 none, 1 measured, 2 Teichholz (int8 arithmetic on the masks: no branch per row)
+        m = have_meas.view(np.int8)
+        source = m + 2 * have_t.view(np.int8) * (1 - m)
+    else:  # no measured volumes (an M-mode list): Teichholz on every row that has LVIDd
+        have_meas = np.zeros(n, dtype=bool)
+        edv = edv_t
+        source = 2 * have_t.view(np.int8)
     out["edv_ml"] = edv
-    out["edv_source"] = _text(
-        np.where(have_meas, 1, np.where(np.isnan(edv_t), 0, 2)).astype(np.int8),
-        ["", "measured", "teichholz"],
-    )
+    out["edv_source"] = _text(source, ["", "measured", "teichholz"])
     # one note for the column, not one per row: where no volume is measured (most M-mode lists)
     # it would sit on every row and hide the flags that matter; edv_source names each row's source
-    if (~have_meas & ~np.isnan(edv_t)).any():
+    if (~have_meas & have_t).any():
         parts.append(
             fnd.make(
                 [-1],
@@ -340,7 +350,7 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, d
     out["fs_pct"] = fs
     out["edv_teichholz_ml"] = edv_t
     out["esv_teichholz_ml"] = esv_t
-    out["sv_teichholz_ml"] = edv_t - esv_t
+    out["sv_teichholz_ml"] = sv_t
     out["ef_teichholz_pct"] = function.ejection_fraction_pct(edv_t, esv_t)
     checks = refset.coefficients("linear_method_checks")
     fs_lo, fs_hi = checks["fs_min_pct"].value, checks["fs_max_pct"].value
@@ -398,17 +408,26 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, d
         "verified": sorted({v.verified for v in line.values()}),
     }
 
-    et, hr = get("ejection_time_ms"), get("hr_bpm")
-    out["vcf_circ_s"] = function.vcf_circ_s(fs, et)
-    out["vcfc_circ_s"] = function.vcfc_circ_s(fs, et, hr)
+    if "ejection_time_ms" in c.columns:
+        et, hr = get("ejection_time_ms"), get("hr_bpm")
+        out["vcf_circ_s"] = function.vcf_circ_s(fs, et)
+        out["vcfc_circ_s"] = function.vcfc_circ_s(fs, et, hr)
+    else:
+        out["vcf_circ_s"], out["vcfc_circ_s"] = nothing(), nothing()
 
     # appropriateness of LV mass (stroke work from measured volumes where both present)
-    esv_meas_ok = ~np.isnan(edv_meas) & ~np.isnan(esv_meas)
-    sv = np.where(esv_meas_ok, edv_meas - esv_meas, edv_t - esv_t)
+    if "lvedv_ml" in c.columns and "lvesv_ml" in c.columns:
+        edv_meas, esv_meas = get("lvedv_ml"), get("lvesv_ml")
+        esv_meas_ok = ~np.isnan(edv_meas) & ~np.isnan(esv_meas)
+        sv = np.where(esv_meas_ok, edv_meas - esv_meas, sv_t)
+    else:
+        sv = sv_t
     sw = stress.stroke_work_g_m(sbp, sv)
     out["stroke_work_g_m"] = sw
     coef = refset.coefficients("mass_prediction")
-    male = np.where(masks["M"], 1.0, np.where(masks["F"], 0.0, np.nan))
+    # 1.0 male, 0.0 female, NaN unknown: one lookup per row (0 unknown, 1 F, 2 M)
+    sex_index = masks["F"].view(np.int8) + 2 * masks["M"].view(np.int8)
+    male = np.array([np.nan, 0.0, 1.0])[sex_index]
     pred_lvm = function.predicted_lv_mass_g(height, sw, male, {k: v.value for k, v in coef.items()})
     out["lv_mass_predicted_g"] = pred_lvm
     appr = function.appropriateness_pct(lvm, pred_lvm)

@@ -130,7 +130,8 @@ def validate_parts(
             "lvids_cm",
             lvids,
         )
-        nums["lvids_cm"] = np.where(bad, np.nan, lvids)
+        if bad.any():
+            nums["lvids_cm"] = np.where(bad, np.nan, lvids)
 
     for sys_name, dia_name, code in (
         ("pws_cm", "pwd_cm", "posterior_wall_thins_in_systole"),
@@ -175,8 +176,9 @@ def validate_parts(
             "dbp_mmhg",
             dbp,
         )
-        nums["sbp_mmhg"] = np.where(bad, np.nan, sbp)
-        nums["dbp_mmhg"] = np.where(bad, np.nan, dbp)
+        if bad.any():
+            nums["sbp_mmhg"] = np.where(bad, np.nan, sbp)
+            nums["dbp_mmhg"] = np.where(bad, np.nan, dbp)
 
     age = col("age_years")
     if age is not None:
@@ -292,13 +294,17 @@ def _canonical_integers(text: pa.Array) -> bool:
 
 
 def _repeated_ids(sid: pd.Series) -> np.ndarray:
-    """True on every row whose identifier (text, NaN for none) appears on another row too.
+    """True on every row whose identifier (an integer or a text; missing for none) appears on
+    another row too.
 
-    Hashing 10^6 texts costs a quarter of a second; identifiers that are all plain integers in
-    canonical form ("1001", not "01001" or "+1001") are compared as integers instead, and a
-    strictly increasing column (the usual export) is seen to hold no repeats in one pass.
+    Hashing 10^6 texts costs a quarter of a second; integer ids (``Int64``, as whole numbers are
+    read) and texts that are all plain integers ("1001", not "01001") are compared as integers
+    instead, and a strictly increasing column (the usual export) is seen to hold no repeats in
+    one pass.
     """
     present = sid.notna().to_numpy()
+    if isinstance(sid.dtype, pd.Int64Dtype):  # ids read from whole numbers (cell_parse.parse_ids)
+        return _repeated_integers(sid.to_numpy(dtype="int64", na_value=0), present)
     if isinstance(sid.dtype, pd.StringDtype) and sid.dtype.storage == "pyarrow":
         text = pa.array(sid.array)
         if isinstance(text, pa.ChunkedArray):
@@ -308,13 +314,17 @@ def _repeated_ids(sid: pd.Series) -> np.ndarray:
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             whole = None
         if whole is not None and _canonical_integers(text):
-            key = whole.to_numpy(zero_copy_only=False)
-            if present.all():
-                if key.size < 2 or bool((key[1:] > key[:-1]).all()):
-                    return np.zeros(key.size, dtype=bool)
-                return pd.Series(key).duplicated(keep=False).to_numpy()
-            dup = np.zeros(present.size, dtype=bool)  # among the rows that have an id only
-            key = whole.drop_null().to_numpy(zero_copy_only=False)
-            dup[present] = pd.Series(key).duplicated(keep=False).to_numpy()
-            return dup
+            key = whole.fill_null(0).to_numpy(zero_copy_only=False)
+            return _repeated_integers(key, present)
     return sid.duplicated(keep=False).to_numpy() & present
+
+
+def _repeated_integers(key: np.ndarray, present: np.ndarray) -> np.ndarray:
+    """:func:`_repeated_ids` of integer ids (``key`` arbitrary where ``present`` is False)."""
+    if present.all():
+        if key.size < 2 or bool((key[1:] > key[:-1]).all()):  # the usual export: increasing
+            return np.zeros(key.size, dtype=bool)
+        return pd.Series(key).duplicated(keep=False).to_numpy()
+    dup = np.zeros(present.size, dtype=bool)  # among the rows that have an id only
+    dup[present] = pd.Series(key[present]).duplicated(keep=False).to_numpy()
+    return dup
