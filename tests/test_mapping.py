@@ -12,7 +12,7 @@ from hypothesis import strategies as st
 from openpyxl.utils.datetime import from_excel
 
 from wallstress import schema
-from wallstress.cell_parse import SEX_DTYPE
+from wallstress.cell_parse import SEX_DTYPE, factorize_text
 from wallstress.errors import InputError
 from wallstress.mapping import (
     map_columns,
@@ -23,6 +23,7 @@ from wallstress.mapping import (
     parse_sex,
 )
 from wallstress.options import Options
+from wallstress.validate import validate
 
 
 def _codes(m, column=None):
@@ -200,6 +201,20 @@ def test_ids_as_text():
     assert out.iloc[2:].isna().all() and out.dtype == object
 
 
+def test_whole_number_ids_are_exact_integers():
+    """A column of whole numbers is read as integer ids (Int64), exactly: 2^60 and 2^60 + 1 are two
+    ids, though a float64 cannot tell them apart (IEEE 754 double: 53-bit significand). Blank is
+    <NA>; 1001.0 from a sheet is 1001."""
+    big = parse_ids(pd.Series([2**60, 2**60 + 1], dtype="int64"))
+    assert big.dtype == "Int64" and big.tolist() == [2**60, 2**60 + 1]
+    assert float(2**60) == float(2**60 + 1)  # why the integers must not pass through floats
+    sheet = parse_ids(pd.Series([1001.0, np.nan, 3.0]))
+    assert sheet.dtype == "Int64" and sheet.iloc[0] == 1001 and sheet.isna().tolist()[1]
+    raw = pd.DataFrame({"study_id": [2**60, 2**60 + 1, 2**60], "sex": ["F"] * 3})
+    _, f = validate(map_columns(raw).canonical)
+    assert set(f.loc[f["code"] == "duplicate_study_id", "row"]) == {0, 2}
+
+
 def test_match_header():
     """Case, spaces, punctuation and bracketed units are ignored. Common practice, no source."""
     assert match_header("  lvid_D (mm) ")[0] == "lvidd_cm"
@@ -316,3 +331,24 @@ def test_fuzz_map_columns(raw, unit_option):
             assert all(isinstance(v, str) or pd.isna(v) for v in col)
     if len(m.findings):
         assert m.findings["row"].between(-1, max(len(raw) - 1, -1)).all()
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    st.lists(
+        st.one_of(st.none(), st.sampled_from(["F", "M", "f", " F", "M ", "1", "", "x", "Fe"])),
+        min_size=0,
+        max_size=12,
+    ),
+    st.integers(0, 3),
+)
+def test_factorize_text_vs_pandas(values, start):
+    """Each row's stripped text, read by the fast paths (one-byte codes read off the Arrow
+    buffer; factorize before stripping), is what pandas' own ``str.strip`` gives row by row
+    (the reference); missing stays missing. Slices of a column read alike."""
+    s = pd.Series(values, dtype="str").iloc[start:]
+    codes, uniq = factorize_text(s)
+    got = [None if c < 0 else uniq.iloc[c] for c in codes]
+    want = [None if pd.isna(v) else v for v in s.str.strip()]
+    assert got == want
+    assert uniq.is_unique  # one code per distinct text: " F" and "F" share theirs

@@ -201,3 +201,18 @@ def test_row_partitions_on_threads_equal_one_pass(monkeypatch):
     monkeypatch.setenv("WALLSTRESS_THREADS", "zero")
     with pytest.raises(ValueError, match="WALLSTRESS_THREADS"):
         pipeline.threads()
+
+
+def test_canonical_numbers_in_cm_share_the_users_memory_read_only():
+    """A column already in the internal unit is not copied: the canonical column is a read-only
+    view of the user's numbers (numpy's writeable flag), and the user's table is unchanged after
+    the analysis (common practice, no source)."""
+    df = pd.DataFrame([canonical_row(), canonical_row(lvidd_cm=5.5)])
+    before = df.copy()
+    a = wallstress.analyse_with_findings(df)
+    lvidd = a.canonical["lvidd_cm"].array._ndarray  # the array itself, not a pandas view of it
+    assert np.shares_memory(lvidd, df["lvidd_cm"].to_numpy())
+    assert not lvidd.flags.writeable
+    with pytest.raises(ValueError, match="read-only"):
+        lvidd[0] = 99.0
+    pd.testing.assert_frame_equal(df, before)

@@ -30,8 +30,8 @@ FINDING_COLUMNS: tuple[str, ...] = (
 SEVERITIES: tuple[str, ...] = ("error", "warning", "note")
 
 
-# The text columns repeat a few strings over many rows (at 10^6 studies the note
-# ``edv_from_teichholz`` alone is on almost every row), so they are pandas Categoricals: one integer
+# The text columns repeat a few strings over many rows (a rule met by a quarter of 10^6 studies
+# repeats its code, column and message 250,000 times), so they are pandas Categoricals: one integer
 # code per row and each distinct text once. ``severity`` has fixed, ordered categories (note <
 # warning < error) so that every table shares them and a rank mapped from them stays ordered.
 TEXT_COLUMNS: tuple[str, ...] = FINDING_COLUMNS[1:]

@@ -363,12 +363,19 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
                 )
             )
     col_factor = units.factor(q, unit_from) if q in units.UNITS else 1.0
-    with np.errstate(invalid="ignore", over="ignore"):
-        internal = value * (col_factor if all_plain else np.where(plain, col_factor, cell_factor))
-    internal = np.asarray(internal, dtype="float64")  # always a new array: value may be the user's
-    # finite values times a factor of at most 1 stay finite; a larger factor may overflow
-    if (not all_plain or col_factor > 1) and not _finite_or_nan(internal):
-        internal[~np.isfinite(internal)] = np.nan
+    if all_plain and col_factor == 1.0:
+        # already in the internal unit: no copy of the column. value may be the user's own
+        # numbers, so the canonical column is a read-only view (nothing downstream writes into
+        # its inputs; a write would raise instead of changing the user's table)
+        internal = value.view()
+        internal.flags.writeable = False
+    else:
+        with np.errstate(invalid="ignore", over="ignore"):
+            factors = col_factor if all_plain else np.where(plain, col_factor, cell_factor)
+            internal = np.asarray(value * factors, dtype="float64")  # a new array
+        # finite values times a factor of at most 1 stay finite; a larger factor may overflow
+        if (not all_plain or col_factor > 1) and not _finite_or_nan(internal):
+            internal[~np.isfinite(internal)] = np.nan
     if not all_plain:
         parts.append(
             fnd.make(
