@@ -4,14 +4,10 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-import pyarrow as pa
-import pyarrow.compute as pc
 import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
 
 from wallstress.mapping import map_columns
-from wallstress.validate import _canonical_integers, validate
+from wallstress.validate import validate
 
 
 def _codes(findings, row):
@@ -111,24 +107,3 @@ def test_repeated_study_ids_whatever_their_form(ids, repeated):
     m = map_columns(raw)
     _, f = validate(m.canonical)
     assert set(f.loc[f["code"] == "duplicate_study_id", "row"]) == repeated
-
-
-@settings(max_examples=300, deadline=None)
-@given(
-    st.lists(
-        st.one_of(st.none(), st.from_regex(r"\A-?[0-9]{1,6}\Z", fullmatch=True)),
-        min_size=1,
-        max_size=8,
-    ),
-    st.booleans(),
-)
-def test_plain_integer_texts_vs_pyarrow_round_trip(texts, sliced):
-    """Ids read as integers are compared as integers only when each text is its integer written
-    back by pyarrow (the reference: ``cast(cast(text, int64), string) == text``); "01001" and
-    "-0" are other texts than "1001" and "0"."""
-    text = pa.array(texts, type=pa.large_string())
-    if sliced and len(text) > 1:
-        text = text.slice(1)
-    whole = pc.cast(text, pa.int64())
-    reference = pc.all(pc.equal(pc.cast(whole, text.type), text)).as_py() is not False
-    assert _canonical_integers(text) == reference

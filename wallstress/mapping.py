@@ -78,9 +78,10 @@ class Mapped:
     ----------
     canonical : DataFrame
         RangeIndex 0..n-1 (positions of the input rows); one column per canonical field found:
-        numbers float64 in internal units, ``sex`` a Categorical of "F"/"M" (NaN where unread), ``study_date``
-        datetime64[ns] (NaT where unreadable), ids nullable ``Int64`` when the column holds whole
-        numbers only, else text (object) with NaN for empty.
+        numbers float64 in internal units (a read-only view of the user's column when no
+        conversion is needed), ``sex`` a Categorical of "F"/"M" (NaN where unread),
+        ``study_date`` datetime64[ns] (NaT where unreadable), ids nullable ``Int64`` when the
+        column holds whole numbers only, else text (object) with NaN for empty.
     mapping : list of dict
         One dict per mapped column: ``source_column``, ``field``, ``unit_from``, ``unit_basis``
         (one of ``UNIT_BASES``; "" for non-numeric fields), ``factor``.

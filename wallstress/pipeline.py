@@ -210,7 +210,7 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, d
     def get(name):
         return c[name].to_numpy(dtype=float) if name in c.columns else np.full(n, np.nan)
 
-    def nothing():  # the result of a formula whose input column is absent: no arithmetic on NaN
+    def all_nan():  # the result of a formula whose input column is absent: no arithmetic on NaN
         return np.full(n, np.nan)
 
     sex = c["sex"] if "sex" in c.columns else pd.Series(np.full(n, None, dtype=object))
@@ -413,7 +413,7 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, d
         out["vcf_circ_s"] = function.vcf_circ_s(fs, et)
         out["vcfc_circ_s"] = function.vcfc_circ_s(fs, et, hr)
     else:
-        out["vcf_circ_s"], out["vcfc_circ_s"] = nothing(), nothing()
+        out["vcf_circ_s"], out["vcfc_circ_s"] = all_nan(), all_nan()
 
     # appropriateness of LV mass (stroke work from measured volumes where both present)
     if "lvedv_ml" in c.columns and "lvesv_ml" in c.columns:

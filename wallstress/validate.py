@@ -10,8 +10,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-import pyarrow as pa
-import pyarrow.compute as pc
 
 from . import findings as fnd
 from .schema import BY_NAME
@@ -263,59 +261,17 @@ def validate_parts(
     return cleaned, parts
 
 
-def _canonical_integers(text: pa.Array) -> bool:
-    """True when every present text, already read by Arrow as an integer (an optional minus sign
-    and digits), is written plainly ("1001", "-7", "0"; not "01001" or "-0"): then equal integers
-    mean equal texts.
-
-    Of the spellings Arrow reads, the plain one is the one whose digits do not start with a zero
-    (unless it is "0" itself): two bytes per text are read, instead of writing every integer back
-    as text and comparing.
-    """
-    n = len(text)
-    if n == 0 or text.null_count == n:
-        return True
-    offset_type = np.int64 if pa.types.is_large_string(text.type) else np.int32
-    _, offsets, data = text.buffers()
-    starts = np.frombuffer(offsets, dtype=offset_type)[text.offset : text.offset + n + 1]
-    length = np.diff(starts)
-    byte = np.frombuffer(data, dtype=np.uint8)
-    if text.null_count:  # a missing value has length 0 here; it has no spelling to check
-        keep = ~text.is_null().to_numpy(zero_copy_only=False)
-        starts, length = starts[:-1][keep], length[keep]
-    else:
-        starts = starts[:-1]
-    first = byte[starts]  # every present text has at least one digit
-    minus = first == ord("-")
-    second = byte[np.where(minus, starts + 1, starts)]  # the first digit
-    lead_zero = second == ord("0")
-    digits = length - minus
-    return not bool((lead_zero & ((digits > 1) | minus)).any())
-
-
 def _repeated_ids(sid: pd.Series) -> np.ndarray:
     """True on every row whose identifier (an integer or a text; missing for none) appears on
     another row too.
 
-    Hashing 10^6 texts costs a quarter of a second; integer ids (``Int64``, as whole numbers are
-    read) and texts that are all plain integers ("1001", not "01001") are compared as integers
-    instead, and a strictly increasing column (the usual export) is seen to hold no repeats in
-    one pass.
+    Integer ids (``Int64``, as ids written as whole numbers are read) are compared as integers: a
+    strictly increasing column (the usual export) is seen to hold no repeats in one pass. Texts
+    are hashed (about a quarter of a second per 10^6).
     """
     present = sid.notna().to_numpy()
     if isinstance(sid.dtype, pd.Int64Dtype):  # ids read from whole numbers (cell_parse.parse_ids)
         return _repeated_integers(sid.to_numpy(dtype="int64", na_value=0), present)
-    if isinstance(sid.dtype, pd.StringDtype) and sid.dtype.storage == "pyarrow":
-        text = pa.array(sid.array)
-        if isinstance(text, pa.ChunkedArray):
-            text = text.combine_chunks()
-        try:
-            whole = pc.cast(text, pa.int64())
-        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-            whole = None
-        if whole is not None and _canonical_integers(text):
-            key = whole.fill_null(0).to_numpy(zero_copy_only=False)
-            return _repeated_integers(key, present)
     return sid.duplicated(keep=False).to_numpy() & present
 
 
