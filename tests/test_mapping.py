@@ -325,7 +325,9 @@ def test_fuzz_map_columns(raw, unit_option):
         elif kind == "sex":  # "F", "M" or missing, as a Categorical
             assert col.dtype == SEX_DTYPE
         elif col.dtype == "Int64":  # identifiers read from whole numbers
-            assert raw[name].dtype.kind in "iuf"
+            src = next(e["source_column"] for e in m.mapping if e["field"] == name)
+            first = raw.loc[:, [c == src for c in raw.columns]].iloc[:, 0]  # the one read
+            assert first.dtype.kind in "iuf"
         else:  # identifiers as text
             assert col.dtype == object
             assert all(isinstance(v, str) or pd.isna(v) for v in col)
@@ -352,3 +354,50 @@ def test_factorize_text_vs_pandas(values, start):
     want = [None if pd.isna(v) else v for v in s.str.strip()]
     assert got == want
     assert uniq.is_unique  # one code per distinct text: " F" and "F" share theirs
+
+
+@settings(max_examples=150, deadline=None)
+@given(
+    st.lists(
+        st.one_of(
+            st.dates(dt.date(1900, 1, 1), dt.date(2100, 12, 31)).map(lambda d: d.isoformat()),
+            st.tuples(st.integers(1990, 2030), st.integers(1, 13), st.integers(1, 31)).map(
+                lambda t: f"{t[0]}-{t[1]}-{t[2]}"
+            ),
+            st.sampled_from(["", "na", "-", "2021/02/03", "03/02/2021", "0001-01-01", "x"]),
+        ),
+        min_size=1,
+        max_size=10,
+    )
+)
+def test_plain_iso_fast_path_reads_as_the_general_path(texts):
+    """Dates read by the one-call path for plain YYYY-MM-DD columns equal those read by the
+    general path (regexes, day/month evidence), with the same problems flagged; texts that are
+    not all plain ISO take the general path. Reference: the general path itself, whose ISO and
+    day-first rules are tested above against ISO 8601."""
+    from wallstress import date_parse
+
+    s = pd.Series(texts, dtype="str")
+    fast = date_parse.parse_dates(s)
+    original = date_parse._plain_iso_dates
+    date_parse._plain_iso_dates = lambda t, missing: None
+    try:
+        general = date_parse.parse_dates(s)
+    finally:
+        date_parse._plain_iso_dates = original
+    pd.testing.assert_series_equal(fast[0], general[0])
+    for k in general[1]:
+        assert np.array_equal(fast[1][k], general[1][k]), k
+
+
+def test_placeholder_date_outside_datetime_range_is_a_finding_not_a_stop():
+    """'0001-01-01' (a placeholder some exports write for "no date") and '9999-12-31' lie outside
+    what datetime64[ns] holds (numpy: 1677-09-21 to 2262-04-11): the cell is left unread with a
+    date_unreadable error and the batch goes on (found by the fast-path property test above)."""
+    raw = pd.DataFrame(
+        {"study_date": ["0001-01-01", "2021-03-04", "9999-12-31", "01/01/0001"], "sex": ["F"] * 4}
+    )
+    m = map_columns(raw)
+    assert m.canonical["study_date"].isna().tolist() == [True, False, True, True]
+    f = m.findings
+    assert set(f.loc[f["code"] == "date_unreadable", "row"]) == {0, 2, 3}

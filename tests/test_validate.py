@@ -5,9 +5,11 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from wallstress.mapping import map_columns
-from wallstress.validate import validate
+from wallstress.validate import _repeated_pairs, validate
 
 
 def _codes(findings, row):
@@ -107,3 +109,26 @@ def test_repeated_study_ids_whatever_their_form(ids, repeated):
     m = map_columns(raw)
     _, f = validate(m.canonical)
     assert set(f.loc[f["code"] == "duplicate_study_id", "row"]) == repeated
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    st.lists(
+        st.tuples(st.one_of(st.none(), st.integers(0, 3)), st.one_of(st.none(), st.integers(0, 3))),
+        max_size=15,
+    )
+)
+def test_repeated_pairs_vs_pandas_duplicated(pairs):
+    """Rows whose (patient, date) pair is repeated are those pandas' DataFrame.duplicated
+    (keep=False) marks, among rows with both present (the reference)."""
+    pid = pd.Series([p for p, _ in pairs], dtype="Int64")
+    day = pd.Series(
+        [
+            pd.NaT if d is None else pd.Timestamp("2020-01-01") + pd.Timedelta(days=d)
+            for _, d in pairs
+        ],
+        dtype="datetime64[ns]",
+    )
+    key = pd.DataFrame({"p": pid, "d": day})
+    want = key.duplicated(keep=False).to_numpy() & key.notna().all(axis=1).to_numpy()
+    assert _repeated_pairs(pid, day).tolist() == want.tolist()

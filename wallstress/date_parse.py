@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from wallstress.cell_parse import _as_text, _expand, _factorize, _is_missing_text
+from wallstress.cell_parse import _expand, _is_missing_text, factorize_text
 
 DATE_MIN = pd.Timestamp("1950-01-01")
 
@@ -37,7 +37,9 @@ def _assemble(y, m, d, hh=None, mm=None, ss=None) -> pd.Series:
         if v is not None:
             parts[k] = pd.to_numeric(v, errors="coerce").fillna(0)
     df = pd.DataFrame(parts).astype("float64")
-    ok = df[["year", "month", "day"]].notna().all(axis=1)
+    # datetime64[ns] holds 1677-09-21 to 2262-04-11: a year outside (a "0001-01-01" placeholder)
+    # is left unread, with a finding, rather than stopping the whole batch
+    ok = df[["year", "month", "day"]].notna().all(axis=1) & df["year"].between(1678, 2261)
     res = pd.Series(pd.NaT, index=df.index, dtype="datetime64[ns]")
     if ok.any():
         res[ok] = pd.to_datetime(df[ok].astype("int64"), errors="coerce").astype("datetime64[ns]")
@@ -87,7 +89,7 @@ def _from_serial(v: np.ndarray) -> tuple[pd.Series, np.ndarray]:
 
 
 def _dates_from_text(s: pd.Series, probs: dict) -> tuple[pd.Series, dict]:
-    codes, uniq = _factorize(_as_text(s))
+    codes, uniq = factorize_text(s)
     out_u, probs_u = _dates_from_unique(uniq, {k: np.zeros(len(uniq), bool) for k in probs})
     out = pd.Series(_expand(out_u.to_numpy(dtype="datetime64[ns]"), codes, np.datetime64("NaT")))
     return out.astype("datetime64[ns]"), {
@@ -95,9 +97,31 @@ def _dates_from_text(s: pd.Series, probs: dict) -> tuple[pd.Series, dict]:
     }
 
 
+def _plain_iso_dates(t: pd.Series, missing: np.ndarray) -> pd.Series | None:
+    """The dates when every present text is a plain YYYY-MM-DD (the usual export), read in one
+    vectorised call; None otherwise (the texts then take the general path below).
+
+    Plain ISO dates carry no day/month ambiguity, so this gives what the general path gives;
+    dates outside datetime64[ns] (1678-2262) go the general way too.
+    """
+    got = pd.to_datetime(t, format="%Y-%m-%d", errors="coerce")
+    ok = got.notna().to_numpy()
+    if not (ok | missing).all():
+        return None
+    if ok.any() and not (
+        pd.Timestamp("1678-01-01") <= got[ok].min() and got[ok].max() <= pd.Timestamp("2262-04-11")
+    ):
+        return None
+    return got.astype("datetime64[ns]")  # a missing token ("na", "-") never reads as a date
+
+
 def _dates_from_unique(t: pd.Series, probs: dict) -> tuple[pd.Series, dict]:
     n = len(t)
     missing = _is_missing_text(t)
+    plain = _plain_iso_dates(t.reset_index(drop=True), missing)
+    if plain is not None:
+        probs["date_unreadable"] = np.zeros(n, dtype=bool)
+        return plain, probs
     out = pd.Series(pd.NaT, index=range(n), dtype="datetime64[ns]")
     done = missing.copy()
 

@@ -241,7 +241,11 @@ _DATE_MESSAGES = {
         "Date {v!r} could be day-first or month-first and the column uses both orders; it was "
         "not read. Write dates as YYYY-MM-DD.",
     ),
-    "date_unreadable": ("error", "Date {v!r} is not readable; write it as YYYY-MM-DD."),
+    "date_unreadable": (
+        "error",
+        "Date {v!r} is not readable as a calendar date between 1678 and 2261; write it as "
+        "YYYY-MM-DD.",
+    ),
     "date_out_of_range": (
         "warning",
         "Date {v!r} is before 1950 or after today; check it.",

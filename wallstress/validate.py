@@ -226,9 +226,7 @@ def validate_parts(
         )
 
     if "patient_id" in out.columns and "study_date" in out.columns:
-        key = out[["patient_id", "study_date"]]
-        have = key.notna().all(axis=1).to_numpy()
-        dup = key.duplicated(keep=False).to_numpy() & have
+        dup = _repeated_pairs(out["patient_id"], out["study_date"])
         rule(
             dup,
             "duplicate_study",
@@ -273,6 +271,20 @@ def _repeated_ids(sid: pd.Series) -> np.ndarray:
     if isinstance(sid.dtype, pd.Int64Dtype):  # ids read from whole numbers (cell_parse.parse_ids)
         return _repeated_integers(sid.to_numpy(dtype="int64", na_value=0), present)
     return sid.duplicated(keep=False).to_numpy() & present
+
+
+def _repeated_pairs(a: pd.Series, b: pd.Series) -> np.ndarray:
+    """True on every row whose (a, b) pair, both present, appears on another row too.
+
+    Each column is factorized once and the pair becomes one integer (a's code times the number
+    of b's values, plus b's code), so that one hash of integers finds the repeats; a code of -1
+    (missing) never matches a pair of present values, and rows with one missing are left out.
+    """
+    ca, _ = pd.factorize(a)
+    cb, ub = pd.factorize(b)
+    have = (ca >= 0) & (cb >= 0)
+    key = ca.astype(np.int64) * (len(ub) + 1) + cb
+    return pd.Series(key).duplicated(keep=False).to_numpy() & have
 
 
 def _repeated_integers(key: np.ndarray, present: np.ndarray) -> np.ndarray:
