@@ -16,6 +16,10 @@ from wallstress.cell_parse import _expand, _is_missing_text, factorize_text
 
 DATE_MIN = pd.Timestamp("1950-01-01")
 
+# the whole years datetime64[ns] holds (1677-09-21 to 2262-04-11); a date outside (a "0001-01-01"
+# placeholder) is left unread, with a finding, rather than stopping the whole batch
+READABLE_YEARS = (1678, 2261)
+
 
 _SERIAL_ORIGIN = pd.Timestamp("1899-12-30")  # 1900 system, valid from serial 61 (1900-03-01)
 
@@ -37,9 +41,7 @@ def _assemble(y, m, d, hh=None, mm=None, ss=None) -> pd.Series:
         if v is not None:
             parts[k] = pd.to_numeric(v, errors="coerce").fillna(0)
     df = pd.DataFrame(parts).astype("float64")
-    # datetime64[ns] holds 1677-09-21 to 2262-04-11: a year outside (a "0001-01-01" placeholder)
-    # is left unread, with a finding, rather than stopping the whole batch
-    ok = df[["year", "month", "day"]].notna().all(axis=1) & df["year"].between(1678, 2261)
+    ok = df[["year", "month", "day"]].notna().all(axis=1) & df["year"].between(*READABLE_YEARS)
     res = pd.Series(pd.NaT, index=df.index, dtype="datetime64[ns]")
     if ok.any():
         res[ok] = pd.to_datetime(df[ok].astype("int64"), errors="coerce").astype("datetime64[ns]")
@@ -102,15 +104,11 @@ def _plain_iso_dates(t: pd.Series, missing: np.ndarray) -> pd.Series | None:
     vectorised call; None otherwise (the texts then take the general path below).
 
     Plain ISO dates carry no day/month ambiguity, so this gives what the general path gives;
-    dates outside datetime64[ns] (1678-2262) go the general way too.
+    years outside ``READABLE_YEARS`` go the general way too.
     """
     got = pd.to_datetime(t, format="%Y-%m-%d", errors="coerce")
     ok = got.notna().to_numpy()
-    if not (ok | missing).all():
-        return None
-    if ok.any() and not (
-        pd.Timestamp("1678-01-01") <= got[ok].min() and got[ok].max() <= pd.Timestamp("2262-04-11")
-    ):
+    if not (ok | missing).all() or not got[ok].dt.year.between(*READABLE_YEARS).all():
         return None
     return got.astype("datetime64[ns]")  # a missing token ("na", "-") never reads as a date
 

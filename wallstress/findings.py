@@ -232,6 +232,13 @@ def concat(parts, *, categorical: bool = False) -> pd.DataFrame:
     return out if categorical else as_text(out)
 
 
+def column_level_keys(findings: pd.DataFrame) -> list[tuple[str, ...]]:
+    """(code, column, field, message) of each row of a findings table: what makes a finding about
+    a whole column or the file the same finding when several chunks or partitions report it."""
+    cols = findings[["code", "column", "field", "message"]].astype(str)
+    return list(map(tuple, cols.to_numpy().tolist()))
+
+
 def _text_dtype():
     """The dtype pandas gives a text column built from Python strings (``str`` in pandas 3)."""
     return pd.DataFrame({"x": np.array(["a"], dtype=object)})["x"].dtype

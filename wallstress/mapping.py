@@ -55,6 +55,7 @@ from wallstress.date_parse import (  # noqa: F401
     parse_dates,
 )
 from wallstress.errors import InputError
+from wallstress.formulas._arrays import finite_or_nan
 from wallstress.header_match import (  # noqa: F401
     _header_unit,
     _resolve_field_name,
@@ -292,21 +293,13 @@ def _plain_number_dtype(dtype) -> bool:
     )
 
 
-def _finite_or_nan(x: np.ndarray) -> bool:
-    """No +/-inf in ``x`` (NaN allowed): two reductions, no temporary array."""
-    if x.size == 0:
-        return True
-    lo, hi = np.fmin.reduce(x), np.fmax.reduce(x)  # NaN only when every value is NaN
-    return bool(np.isnan(hi) or (-np.inf < lo and hi < np.inf))
-
-
 def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_option: str):
     parts = []
     q = fld.quantity
     if _plain_number_dtype(s.dtype):  # numbers already (the usual case): no text to read
         value = s.to_numpy(dtype="float64", na_value=np.nan)
         cell_factor = bad = None
-        if not _finite_or_nan(value):  # inf is not a measurement
+        if not finite_or_nan(value):  # inf is not a measurement
             bad = np.isinf(value)
             value = np.where(bad, np.nan, value)
     else:
@@ -379,7 +372,7 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
             factors = col_factor if all_plain else np.where(plain, col_factor, cell_factor)
             internal = np.asarray(value * factors, dtype="float64")  # a new array
         # finite values times a factor of at most 1 stay finite; a larger factor may overflow
-        if (not all_plain or col_factor > 1) and not _finite_or_nan(internal):
+        if (not all_plain or col_factor > 1) and not finite_or_nan(internal):
             internal[~np.isfinite(internal)] = np.nan
     if not all_plain:
         parts.append(

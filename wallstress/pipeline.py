@@ -184,9 +184,9 @@ def _compute_in_partitions(c: pd.DataFrame, o: Options, refset) -> tuple[dict, l
         for f in r[1]:
             rows = f["row"].to_numpy()
             if (rows < 0).all():  # a finding about a column: once, however many partitions say it
-                key = tuple(map(str, f[["code", "column", "field", "message"]].iloc[0]))
-                if key not in seen:
-                    seen.add(key)
+                keys = fnd.column_level_keys(f)
+                if not seen.issuperset(keys):
+                    seen.update(keys)
                     parts.append(f)
             else:
                 parts.append(f.assign(row=rows + start) if start else f)
@@ -304,15 +304,16 @@ def _compute_columns(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, d
         # 0 none, 1 measured, 2 Teichholz (int8 arithmetic on the masks: no branch per row)
         m = have_meas.view(np.int8)
         source = m + 2 * have_t.view(np.int8) * (1 - m)
+        teichholz_used = bool((~have_meas & have_t).any())
     else:  # no measured volumes (an M-mode list): Teichholz on every row that has LVIDd
-        have_meas = np.zeros(n, dtype=bool)
         edv = edv_t
         source = 2 * have_t.view(np.int8)
+        teichholz_used = bool(have_t.any())
     out["edv_ml"] = edv
     out["edv_source"] = _text(source, ["", "measured", "teichholz"])
     # one note for the column, not one per row: where no volume is measured (most M-mode lists)
     # it would sit on every row and hide the flags that matter; edv_source names each row's source
-    if (~have_meas & have_t).any():
+    if teichholz_used:
         parts.append(
             fnd.make(
                 [-1],

@@ -476,15 +476,7 @@ class _RunState:
             self.counts[k] += int(c[k])
         file_level = found[found["row"] < 0]
         if len(file_level):
-            keys = list(
-                map(
-                    tuple,
-                    file_level[["code", "column", "field", "message"]]
-                    .astype(str)
-                    .to_numpy()
-                    .tolist(),
-                )
-            )
+            keys = fnd.column_level_keys(file_level)
             new = [k not in self._seen for k in keys]
             if any(new):
                 self.file_findings = pd.concat(

@@ -78,6 +78,12 @@ def _within(x: np.ndarray, *, above_zero: bool, at_zero: bool) -> bool:
     return bool(lo >= 0) if at_zero else bool(lo > 0)
 
 
+def finite_or_nan(x: np.ndarray) -> bool:
+    """True when ``x`` (a float array) holds no +/-inf; NaN is allowed. Two reductions, no
+    temporary array."""
+    return x.size == 0 or _within(x, above_zero=False, at_zero=False)
+
+
 def positive(x: np.ndarray) -> np.ndarray:
     """``x`` where it is finite and > 0, NaN elsewhere (lengths, pressures, volumes, times).
 
