@@ -19,7 +19,9 @@ import time
 import numpy as np
 import pandas as pd
 
-from wallstress.tracking import MEASURES, SLOPE_MEASURES, track
+from wallstress.tracking.per_patient import SLOPE_MEASURES
+from wallstress.tracking.track import track
+from wallstress.tracking.visits import MEASURES
 
 GEOMETRY = ("normal", "concentric_remodelling", "concentric_hypertrophy", "eccentric_hypertrophy")
 

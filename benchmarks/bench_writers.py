@@ -59,9 +59,9 @@ def timed(fn) -> float:
 
 
 def bench_xlsx(rows: int, folder: Path) -> dict:
-    from wallstress.output_parts import WriteReport, _Part
-    from wallstress.xlsx_out import _save_workbook_copy
-    from wallstress.xlsx_splice import splice_sheets
+    from wallstress.write.parts import WriteReport, _Part
+    from wallstress.write.xlsx.splice import splice_sheets
+    from wallstress.write.xlsx.workbook import _save_workbook_copy
 
     src = folder / f"user_{rows}.xlsx"
     user_workbook(src, rows)
@@ -85,7 +85,7 @@ def bench_xlsx(rows: int, folder: Path) -> dict:
 
 
 def bench_csv(rows: int, folder: Path) -> dict:
-    from wallstress.fast_csv import write_csv
+    from wallstress.write.fast_csv import write_csv
 
     table = results_table(rows)
     t_fast = timed(lambda: write_csv(table, folder / "fast.csv"))

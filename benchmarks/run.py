@@ -142,7 +142,7 @@ def bare_measures(df: pd.DataFrame) -> pd.DataFrame:
 def _constants() -> dict:
     """The default set's cut-offs and the bundled model coefficients, as plain numbers (read once,
     outside the timed part, so the baseline carries no table lookups)."""
-    from wallstress.references import load_set, model_coefficients
+    from wallstress.analysis.references import load_set, model_coefficients
 
     ref = load_set("ase_eacvi_2015")
     cut = {}
@@ -159,7 +159,7 @@ def _constants() -> dict:
             ]
     coef = {k: v.value for k, v in model_coefficients("mass_prediction").items()}
     line = {k: v.value for k, v in model_coefficients("midwall_stress_line").items()}
-    from wallstress.classify import GEOMETRY_4_NAMES, GEOMETRY_8_NAMES  # labels only
+    from wallstress.analysis.classify import GEOMETRY_4_NAMES, GEOMETRY_8_NAMES
 
     return {
         "cut": cut,

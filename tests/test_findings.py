@@ -13,11 +13,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wallstress import classify
 from wallstress import findings as fnd
-from wallstress.cell_parse import parse_sex
-from wallstress.references import load_set
-from wallstress.validate import validate
+from wallstress.analysis import classify
+from wallstress.analysis.references import load_set
+from wallstress.prepare.cells import parse_sex
+from wallstress.prepare.validate import validate
 
 TEXT = fnd.TEXT_COLUMNS
 

@@ -19,12 +19,13 @@ from importlib import import_module
 __version__ = "0.1.0"
 
 _LAZY = {
-    "analyse": ("wallstress.pipeline", "analyse"),
-    "analyse_with_findings": ("wallstress.pipeline", "analyse_with_findings"),
+    "analyse": ("wallstress.analysis.pipeline", "analyse"),
+    "analyse_with_findings": ("wallstress.analysis.pipeline", "analyse_with_findings"),
     "Options": ("wallstress.options", "Options"),
-    "track": ("wallstress.tracking", "track"),
-    "read_studies": ("wallstress.readers", "read_studies"),
-    "write_results": ("wallstress.writers", "write_results"),
+    "track": ("wallstress.tracking.track", "track"),
+    "read_studies": ("wallstress.read.studies", "read_studies"),
+    "write_results": ("wallstress.write.results", "write_results"),
+    "calibrate": ("wallstress.calibration.fit", "calibrate"),
 }
 
 __all__ = [*_LAZY, "__version__"]

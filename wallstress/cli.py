@@ -13,9 +13,9 @@ from pathlib import Path
 
 import typer
 
-from . import __version__
-from .errors import WallstressError
-from .options import Options
+from wallstress import __version__
+from wallstress.errors import WallstressError
+from wallstress.options import Options
 
 app = typer.Typer(
     add_completion=False,
@@ -112,7 +112,7 @@ def _options(
     es_pressure: EsPressure = EsPressure.cuff_sbp,
     stress_constant: StressConstant = StressConstant.published,
 ) -> Options:
-    from .jobs import read_columns_map
+    from wallstress.jobs import read_columns_map
 
     return Options(
         reference=reference,
@@ -201,7 +201,7 @@ def analyse(
     quiet: bool = QUIET,
 ):
     """Every measure for every study, with flags and a methods record."""
-    from .jobs import analyse_file
+    from wallstress.jobs import analyse_file
 
     options = _guard(
         _options, reference, units, sheet, columns, bsa, mass, rwt, es_pressure, stress_constant
@@ -237,7 +237,7 @@ def _summarise(counts: dict, notes, written, quiet: bool, strict: bool, where: s
 
 
 def _analyse_in_chunks(studies, out, options, chunk_rows, escape_formulas, quiet, strict) -> None:
-    from .scale import analyse_chunked
+    from wallstress.chunked import analyse_chunked
 
     def progress(done: int, total: int | None) -> None:
         if not quiet and sys.stderr.isatty():
@@ -283,7 +283,7 @@ def track(
     quiet: bool = QUIET,
 ):
     """Per-patient change against reproducibility, slopes and geometry transitions."""
-    from .jobs import track_file
+    from wallstress.jobs import track_file
 
     options = _guard(_options, reference, units, sheet, columns)
     result = _guard(
@@ -310,7 +310,7 @@ def report(
     quiet: bool = QUIET,
 ):
     """Pictures and per-patient pages in one HTML file that works offline."""
-    from .jobs import report_file
+    from wallstress.jobs import report_file
 
     options = _guard(_options, reference, units, sheet, columns)
     path = _guard(report_file, studies, out, options, figures_dir=figures)
@@ -321,7 +321,7 @@ def report(
 @app.command()
 def template(out: Path = typer.Option(..., "--out", "-o", help="Output .xlsx")):
     """An empty study list with the expected headers, units and input hints."""
-    from .template import write_template
+    from wallstress.write.template import write_template
 
     path = _guard(write_template, out)
     typer.echo(f"wrote {path}")
@@ -332,7 +332,7 @@ def references(
     name: str = typer.Argument(None, help="A set name or set CSV; omit to list the bundled sets."),
 ):
     """The cut-offs in force, each with its source and whether it was checked."""
-    from .references import list_sets, load_set
+    from wallstress.analysis.references import list_sets, load_set
 
     if not name:
         for n in list_sets():
@@ -379,7 +379,7 @@ def calibrate(
     columns: Path = COLUMNS,
 ):
     """Your lab's own reference limits and stress-shortening line from its healthy subjects."""
-    from .jobs import calibrate_file
+    from wallstress.jobs import calibrate_file
 
     options = _guard(_options, base, units, sheet, columns)
     result = _guard(
@@ -396,7 +396,7 @@ def demo(
     folder: Path = typer.Argument(Path("wallstress-demo"), help="Where to write the demo outputs."),
 ):
     """The whole job on the bundled, invented sample studies."""
-    from .jobs import run_demo
+    from wallstress.jobs import run_demo
 
     result = _guard(run_demo, folder)
     for line in result.notes:

@@ -8,12 +8,13 @@ from pathlib import Path
 
 import pandas as pd
 
-from .errors import InputError, OutputError
-from .options import Options
-from .pipeline import analyse_with_findings
-from .progress import Progress
-from .readers import check_fits_xlsx, read_studies
-from .result import Analysis
+from wallstress.analysis.pipeline import analyse_with_findings
+from wallstress.analysis.result import Analysis
+from wallstress.errors import InputError, OutputError
+from wallstress.options import Options
+from wallstress.progress import Progress
+from wallstress.read.studies import read_studies
+from wallstress.write.xlsx.workbook import check_fits_xlsx
 
 
 @dataclass
@@ -84,7 +85,7 @@ def analyse_file(
         raise OutputError(
             f"{out_path}: this would overwrite your input; choose another -o or pass --in-place"
         )
-    from .writers import write_results
+    from wallstress.write.results import write_results
 
     with Progress(4, enabled=None if not quiet else False) as bar:
         study = read_studies(path, sheet=options.sheet, columns=options.columns)
@@ -132,8 +133,8 @@ def track_file(
     same_day: str = "mean",
 ) -> JobResult:
     """Follow-up of a clinic cohort: patients, visits, transitions and methods, written to ``out``."""
-    from .tracking import track, tracking_sheets
-    from .writers import write_sheets
+    from wallstress.tracking.track import track, tracking_sheets
+    from wallstress.write.results import write_sheets
 
     options = options or Options()
     path, out = Path(path), Path(out)
@@ -155,8 +156,8 @@ def report_file(
     path: str | Path, out: str | Path, options: Options | None = None, *, figures_dir=None
 ) -> Path:
     """One self-contained HTML report; per-patient pages when patients have several studies."""
-    from .report import write_report
-    from .tracking import track
+    from wallstress.report.page import write_report
+    from wallstress.tracking.track import track
 
     options = options or Options()
     _, analysis = _read_and_analyse(path, options)
@@ -176,7 +177,7 @@ def calibrate_file(
     allow_small: bool = False,
 ) -> JobResult:
     """A lab's own reference set from its healthy subjects."""
-    from .calibrate import calibrate, write_set
+    from wallstress.calibration.fit import calibrate, write_set
 
     options = options or Options()
     _, analysis = _read_and_analyse(path, options)
@@ -194,7 +195,7 @@ def calibrate_file(
 
 def sample_dir() -> Path:
     """The bundled, invented sample studies (installed with the package)."""
-    from ._data import data_dir
+    from wallstress.bundled import data_dir
 
     folder = data_dir("sample_studies")
     if not (folder / "fernhill_echo_lab.xlsx").is_file():
@@ -234,7 +235,7 @@ def run_demo(folder: str | Path = "wallstress-demo") -> JobResult:
     )
     notes.append(f"report: {lab_rep.name}")
     try:
-        from .calibrate import calibrate, write_set
+        from wallstress.calibration.fit import calibrate, write_set
 
         _, normals = _read_and_analyse(samples / "fernhill_normals.csv", Options())
         cal = calibrate(

@@ -7,8 +7,8 @@ qualified clinician's judgement and the local lab's protocols and reference valu
 "from memory" in the docstrings were recalled, not read in the source.
 """
 
-from .body_size import BSA_METHODS, bsa_m2, height_power
-from .constants import (
+from wallstress.formulas.body_size import BSA_METHODS, bsa_m2, height_power
+from wallstress.formulas.constants import (
     DYN_CM2_PER_PA,
     KPA_MMHG,
     MMHG_DYN_CM2,
@@ -19,7 +19,7 @@ from .constants import (
     MYOCARDIAL_DENSITY_2D_G_ML,
     MYOCARDIAL_DENSITY_G_ML,
 )
-from .function import (
+from wallstress.formulas.function import (
     MIDWALL_MODELS,
     PREDICTED_MASS_COEFFICIENTS_FROM_MEMORY,
     PREDICTED_MASS_KEYS,
@@ -34,7 +34,7 @@ from .function import (
     vcf_circ_s,
     vcfc_circ_s,
 )
-from .mass import (
+from wallstress.formulas.mass import (
     AREA_MASS_METHODS,
     LINEAR_MASS_METHODS,
     RWT_METHODS,
@@ -44,7 +44,7 @@ from .mass import (
     lv_mass_truncated_ellipsoid_g,
     relative_wall_thickness,
 )
-from .stress import (
+from wallstress.formulas.stress import (
     ES_PRESSURE_METHODS,
     STRESS_CONSTANTS,
     circumferential_es_stress_kdyn_cm2,

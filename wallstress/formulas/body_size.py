@@ -10,7 +10,7 @@ import numbers
 
 import numpy as np
 
-from ._arrays import as_arrays, check_choice, positive, restore
+from wallstress.formulas._arrays import as_arrays, check_choice, positive, restore
 
 BSA_METHODS: tuple[str, ...] = ("dubois", "mosteller", "haycock", "gehan_george", "boyd")
 

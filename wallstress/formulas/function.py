@@ -12,7 +12,7 @@ import numbers
 
 import numpy as np
 
-from ._arrays import as_arrays, check_choice, finite, positive, restore
+from wallstress.formulas._arrays import as_arrays, check_choice, finite, positive, restore
 
 MIDWALL_MODELS: tuple[str, ...] = ("two_shell_ellipsoid",)
 

@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._arrays import as_arrays, check_choice, positive, restore
-from .constants import MYOCARDIAL_DENSITY_2D_G_ML, MYOCARDIAL_DENSITY_G_ML
+from wallstress.formulas._arrays import as_arrays, check_choice, positive, restore
+from wallstress.formulas.constants import MYOCARDIAL_DENSITY_2D_G_ML, MYOCARDIAL_DENSITY_G_ML
 
 LINEAR_MASS_METHODS: tuple[str, ...] = ("ase_corrected", "penn")
 AREA_MASS_METHODS: tuple[str, ...] = ("area_length", "truncated_ellipsoid")

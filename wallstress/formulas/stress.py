@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._arrays import as_arrays, check_choice, positive, restore
-from .constants import MMHG_KDYN_CM2, MMHG_ML_GF_M
+from wallstress.formulas._arrays import as_arrays, check_choice, positive, restore
+from wallstress.formulas.constants import MMHG_KDYN_CM2, MMHG_ML_GF_M
 
 STRESS_CONSTANTS: tuple[str, ...] = ("published", "exact")
 ES_PRESSURE_METHODS: tuple[str, ...] = ("cuff_sbp", "scaled_sbp", "weighted_mean")

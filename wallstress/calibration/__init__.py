@@ -1,0 +1,1 @@
+"""A lab's own reference limits from its healthy subjects."""

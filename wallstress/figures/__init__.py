@@ -1,0 +1,1 @@
+"""One module per picture, and what they share."""

@@ -1,0 +1,1 @@
+"""Reading study lists: file guards, CSV, sheets (xlsx/ods), the grid, parquet."""

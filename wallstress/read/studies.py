@@ -1,0 +1,212 @@
+"""Reading study lists: csv, xlsx, ods and parquet, as the user wrote them.
+
+``read_studies(path)`` returns the raw cells under the user's own headers (one row per study, in file
+order) plus everything noticed on the way (encoding, delimiter, decimal comma, header row, folded
+units row, duplicate headers, spreadsheet error values, formulas never calculated, over-long cells).
+Formulas and units are not touched here: ``mapping.map_columns`` reads the cells.
+
+A file that cannot be used at all raises ``InputError`` with one line naming the file, what is
+wrong and what to do. Workbooks are checked before any parser sees them: a zip container must stay
+within ``ZIP_LIMITS`` (entries, uncompressed sizes, compression ratio) and no XML part may declare a
+DOCTYPE or entity (entity-expansion attacks). openpyxl, the fallback reader, additionally parses
+through defusedxml when it is installed (it is a dependency).
+
+Before anything is read, the path must be a regular file (a device such as ``/dev/zero``, a FIFO or
+a socket is refused: it could block or never end) of at most ``READ_LIMIT_BYTES`` (larger CSV and
+parquet files go through ``--chunk-rows``). A sheet whose cells reach far beyond its table (a stray
+cell at XFD1048576) is measured before the fast reader expands it, and read bounded to its table
+(:mod:`wallstress.sheet_bounds`). ``check_fits_xlsx`` refuses, before any computing, a study list
+whose results cannot fit an xlsx sheet.
+
+A file with a header and no data rows is not an error: it returns 0 rows with a ``no_rows`` finding.
+
+This module dispatches by format and reads parquet; the rest lives in :mod:`wallstress.file_guards`
+(format sniffing, zip and XML checks), :mod:`wallstress.csv_in` (encoding, delimiter, decimal comma),
+:mod:`wallstress.sheet_in` (xlsx/ods sheets), :mod:`wallstress.sheet_bounds` (sheet extent and bounded reads), :mod:`wallstress.grid_in` (header row, units row,
+cell findings) and :mod:`wallstress.study_table` (:class:`StudyTable`). Their names stay importable
+from here.
+
+References
+----------
+RFC 4180, Common Format and MIME Type for Comma-Separated Values (CSV) Files, 2005.
+ECMA-376, Office Open XML File Formats, 5th ed., 2016 (SpreadsheetML cells: ``t="e"`` error values,
+``<f>`` formulas with cached ``<v>`` values; 32,767 characters per cell).
+OASIS, Open Document Format for Office Applications (OpenDocument) v1.2, 2011.
+[MS-OFFCRYPTO], Office Document Cryptography Structure (encrypted OOXML is an OLE compound file
+holding ``EncryptionInfo`` and ``EncryptedPackage`` streams).
+"""
+
+from __future__ import annotations
+
+import hashlib
+from pathlib import Path
+
+import pandas as pd
+import pyarrow as pa
+
+from wallstress import findings as fnd
+from wallstress.errors import InputError
+
+# moved to modules of their own; re-exported so that ``from wallstress.readers import ...`` keeps working
+from wallstress.read.delimited import (
+    _read_csv,
+)
+from wallstress.read.grid import (
+    _cell_findings,
+    _file_note,
+    _unique_headers,
+)
+from wallstress.read.guards import (
+    _sniff,
+    read_file_bytes,
+)
+from wallstress.read.sheets import (
+    _read_workbook,
+)
+from wallstress.read.study_table import StudyTable
+from wallstress.schema.headers import check_columns_option, header_score
+
+FORMATS: tuple[str, ...] = ("csv", "xlsx", "ods", "parquet")
+
+
+def read_studies(
+    path, sheet: str | None = None, *, max_rows: int | None = None, columns: dict | None = None
+) -> StudyTable:
+    """Read a study list (csv, xlsx, ods or parquet) into raw cells under the user's headers.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file. Its contents decide the format (an xlsx named .csv is read as xlsx, with a note).
+    sheet : str, optional
+        Workbook sheet; default the first sheet whose header row is recognised.
+    max_rows : int, optional
+        Read at most this many data rows (e.g. for a preview).
+    columns : dict, optional
+        The lab's own header -> canonical field map (``Options.columns``); such headers count as
+        recognised when looking for the header row.
+
+    Returns
+    -------
+    StudyTable
+
+    Raises
+    ------
+    InputError
+        The file cannot be used (missing, a folder, not a regular file, over ``READ_LIMIT_BYTES``,
+        damaged, unsafe, no recognisable header...); one line naming the file, the problem and the fix.
+    """
+    p = Path(path)
+    if max_rows is not None and (not isinstance(max_rows, int) or max_rows < 0):
+        raise InputError(f"max_rows={max_rows!r} is not valid; pass a whole number >= 0 or None")
+    check_columns_option(columns)
+    data = read_file_bytes(p)
+    if not data.strip():
+        raise InputError(f"{p}: the file is empty; export the study list again with its header row")
+    digest = hashlib.sha256(data).hexdigest()
+    kind = _sniff(p, data)
+    notes: list[pd.DataFrame] = []
+    suffix = p.suffix.lower().lstrip(".")
+    named = {"xlsm": "xlsx", "tsv": "csv", "txt": "csv"}.get(suffix, suffix)
+    if named in FORMATS and named != kind:
+        notes.append(
+            _file_note(
+                "format_differs_from_name",
+                f"The file is named .{suffix} but its contents are {kind}; it was read as {kind}.",
+            )
+        )
+    if kind == "csv":
+        st = _read_csv(p, data, max_rows, columns)
+    elif kind in ("xlsx", "ods"):
+        st = _read_workbook(p, kind, sheet, max_rows, columns)
+    else:
+        st = _read_parquet(p, max_rows, columns)
+    st.sha256 = digest
+    st.findings = fnd.concat([*notes, st.findings])
+    release_parser_memory()
+    return st
+
+
+def release_parser_memory() -> None:
+    """Hand the memory the parsers freed back to the system.
+
+    Arrow's allocator keeps freed blocks for reuse; after reading a CSV of 10^6 rows it held about
+    250 MiB that the numpy steps after it cannot use (measured in benchmarks/). A few
+    milliseconds.
+    """
+    pa.default_memory_pool().release_unused()
+
+
+def _read_parquet(p: Path, max_rows, columns) -> StudyTable:
+    try:
+        import pyarrow.parquet as pq
+    except ImportError as exc:  # optional dependency
+        raise InputError(
+            f"{p}: reading parquet needs pyarrow; install it (pip install pyarrow) or pass a CSV/xlsx file"
+        ) from exc
+    try:
+        pf = pq.ParquetFile(p)
+        if max_rows is not None:
+            batches = []
+            got = 0
+            for b in pf.iter_batches(batch_size=max(1, min(max_rows, 65536))):
+                batches.append(b)
+                got += b.num_rows
+                if got >= max_rows:
+                    break
+            import pyarrow as pa
+
+            tbl = (
+                pa.Table.from_batches(batches, schema=pf.schema_arrow)
+                if batches
+                else pf.schema_arrow.empty_table()
+            )
+        else:
+            tbl = pf.read()
+        df = tbl.to_pandas()
+    except Exception as exc:
+        raise InputError(
+            f"{p}: the parquet file cannot be read ({type(exc).__name__}: {exc}); write it again"
+        ) from exc
+    if max_rows is not None:
+        df = df.iloc[:max_rows]
+    df = df.reset_index(drop=True)
+    headers = [str(c) for c in df.columns]
+    need = min(3, len(headers))
+    if header_score(headers, columns) < need:
+        raise InputError(
+            f"{p}: no recognisable column names ({header_score(headers, columns)} known, at least {need} "
+            "needed, e.g. ivsd_cm, lvidd_cm, pwd_cm, height_cm, weight_kg); rename them or map them with --columns"
+        )
+    uniq, dup = _unique_headers(headers)
+    df.columns = uniq
+    parts = _duplicate_header_findings(dup)
+    if len(df) == 0:
+        parts.append(
+            _file_note("no_rows", "The study list has column names but no data rows.", "warning")
+        )
+    parts += _cell_findings(df)
+    return StudyTable(
+        table=df,
+        path=p,
+        format="parquet",
+        sheet=None,
+        header_row=0,
+        sha256="",
+        findings=fnd.concat(parts),
+        first_data_row=1,
+    )
+
+
+def _duplicate_header_findings(renamed) -> list:
+    """One file-level warning per header copy that was renamed to make the names unique."""
+    return [
+        fnd.make(
+            [-1],
+            code="duplicate_header",
+            severity="warning",
+            column=h,
+            message=f"A column name appears more than once; this copy was renamed {h!r}.",
+        )
+        for h in renamed
+    ]

@@ -1,0 +1,1 @@
+"""The self-contained offline HTML report."""

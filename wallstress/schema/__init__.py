@@ -1,0 +1,1 @@
+"""Input fields, units, header matching and the registry of output columns."""

@@ -1,0 +1,1 @@
+"""Follow-up over years: visits, per-patient change and slopes, cohort tables."""

@@ -1,0 +1,1 @@
+"""Results, findings and methods written next to (never over) the user's data."""

@@ -1,0 +1,142 @@
+"""csv and parquet outputs: the main table, one side file per other table, ``name.methods.json``.
+
+CSV keeps the study list's delimiter, decimal mark and BOM when the input was CSV; formula-like text
+is reported (finding ``formula_like_text``) and optionally escaped. All files of one write are
+committed together (:func:`wallstress.safety.atomic_files`).
+"""
+
+from __future__ import annotations
+
+import json
+
+import pandas as pd
+
+from wallstress import findings as _findings
+from wallstress.errors import OutputError
+from wallstress.write import safety
+from wallstress.write.fast_csv import write_csv
+from wallstress.write.methods_sheet import _json_default, methods_record
+from wallstress.write.parts import WriteReport, _sidecar
+
+
+def _write_flat(out, suffix, parts, methods, source, escape_formulas) -> WriteReport:
+    report = WriteReport()
+    main = parts[0].frame
+    if suffix == ".csv":
+        report.formula_like = safety.formula_like_findings(main, escaped=escape_formulas)
+        if len(report.formula_like):
+            report.notes.append(
+                f"{len(report.formula_like)} text cell(s) start like a spreadsheet formula"
+                + (" and were prefixed with a single quote" if escape_formulas else "")
+                + " (finding formula_like_text)"
+            )
+    outputs = [out] + [_sidecar(out, p.key) for p in parts if p.key]
+    methods_json = _sidecar(out, "methods", ".json")
+    with safety.atomic_files() as batch:
+        for part, target in zip(parts, outputs, strict=True):
+            frame = part.frame
+            if part.key == "findings" and len(report.formula_like):
+                frame = _add_missing_findings(frame, report.formula_like)
+            tmp = batch.path(target)
+            if suffix == ".csv":
+                _to_csv(frame, tmp, source, escape_formulas)  # Categoricals as text, by slice
+            else:
+                if part.key == "findings":  # text columns, as the chunked path writes them
+                    frame = _findings.as_text(frame)
+                _to_parquet(frame, tmp, part.sheet, report)
+        record = methods_record(
+            methods, source, notes=report.notes, outputs=[*outputs, methods_json]
+        )
+        batch.path(methods_json).write_text(
+            json.dumps(record, indent=2, ensure_ascii=False, default=_json_default) + "\n",
+            encoding="utf-8",
+        )
+    report.extend([*outputs, methods_json])
+    return report
+
+
+def _to_csv(frame, tmp, source, escape_formulas) -> None:
+    delimiter, decimal, encoding = ",", ".", "utf-8"
+    if source is not None and str(getattr(source, "format", "")).lower().lstrip(".") in (
+        "csv",
+        "tsv",
+        "txt",
+    ):
+        delimiter = getattr(source, "delimiter", None) or ","
+        decimal = getattr(source, "decimal", None) or "."
+        if str(getattr(source, "encoding", "") or "").lower().replace("_", "-") == "utf-8-sig":
+            encoding = "utf-8-sig"
+    if decimal == delimiter:
+        delimiter = ";"
+    if escape_formulas:
+        frame = safety.escape_formula_text(frame)
+    write_csv(frame, tmp, delimiter=delimiter, decimal=decimal, encoding=encoding)
+
+
+PARQUET_OBJECT_KINDS = (
+    "string",
+    "empty",
+    "floating",
+    "integer",
+    "boolean",
+    "mixed-integer-float",
+    "date",
+    "datetime",
+    "decimal",
+    "bytes",
+)
+"""Kinds of object column (``pandas.api.types.infer_dtype``) that parquet stores as they are."""
+
+
+def parquet_ready(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[str]]:
+    """``frame`` as parquet can store it, and what was changed: repeated column names numbered,
+    object columns of mixed values written as text. The input is not modified."""
+    cols = [str(c) for c in frame.columns]
+    mixed = [
+        j
+        for j in range(frame.shape[1])
+        if frame.iloc[:, j].dtype == object
+        and pd.api.types.infer_dtype(frame.iloc[:, j], skipna=True) not in PARQUET_OBJECT_KINDS
+    ]
+    repeated = len(set(cols)) != len(cols)
+    if not repeated and not mixed and cols == list(frame.columns):
+        return frame, []
+    notes = []
+    frame = frame.copy()
+    if repeated:
+        seen: dict[str, int] = {}
+        unique = []
+        for c in cols:
+            seen[c] = seen.get(c, 0) + 1
+            unique.append(c if seen[c] == 1 else f"{c} ({seen[c]})")
+        notes.append("repeated column names numbered for parquet")
+        cols = unique
+    frame.columns = cols
+    for j in mixed:
+        frame.isetitem(j, frame.iloc[:, j].map(lambda v: None if _is_missing(v) else str(v)))
+        notes.append(f"column {cols[j]!r} holds mixed values; written as text in parquet")
+    return frame, notes
+
+
+def _to_parquet(frame, tmp, sheet, report) -> None:
+    frame, notes = parquet_ready(frame)
+    report.notes.extend(f"{sheet!r}: {n}" for n in notes)
+    try:
+        frame.to_parquet(tmp, index=False)
+    except ImportError as exc:
+        raise OutputError(
+            "writing .parquet needs pyarrow (pip install pyarrow); or write .csv/.xlsx"
+        ) from exc
+
+
+def _is_missing(v) -> bool:
+    try:
+        return bool(pd.isna(v))
+    except (TypeError, ValueError):
+        return False
+
+
+def _add_missing_findings(findings: pd.DataFrame, extra: pd.DataFrame) -> pd.DataFrame:
+    if "code" in findings.columns and (findings["code"] == safety.FORMULA_LIKE_CODE).any():
+        return findings
+    return _findings.concat([findings, extra])

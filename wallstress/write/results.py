@@ -1,0 +1,247 @@
+"""Write results, findings and the methods record next to (never over) the user's data.
+
+Formats, chosen by the suffix of the output path:
+
+- ``.xlsx``: from an ``.xlsx`` study list, a copy of the user's workbook (every sheet, formula,
+  comment, style, defined name and column width of theirs kept) with three sheets of ours added
+  ("wallstress results", "wallstress findings", "wallstress methods"). When the workbook holds parts
+  the spreadsheet library cannot carry over (macros, drawings, pivot tables, extensions...), no
+  degraded copy is written: a separate workbook holds our sheets, and the notes and methods say so.
+  From any other source, a new workbook with those three sheets.
+- ``.csv``: the results table (the user's columns, then ours), ``name.findings.csv`` and
+  ``name.methods.json`` beside it.
+- ``.parquet``: likewise (``name.findings.parquet``, ``name.methods.json``).
+
+Never-harm rules (see :mod:`wallstress.safety`): every file goes through a temporary file in the
+target folder and ``os.replace``; the input file is never changed except with ``in_place``, and then
+only after a verified backup; text is written as text (no cell of ours becomes a formula, error value
+or link); formula-like text in CSV outputs is reported and optionally escaped.
+
+This module plans a write and dispatches it by format; the work is done in
+:mod:`wallstress.xlsx_out` (workbooks), :mod:`wallstress.flat_out` (csv, parquet),
+:mod:`wallstress.methods_sheet` (the methods record), :mod:`wallstress.output_units` (units in
+headers) and :mod:`wallstress.output_parts` (:class:`WriteReport`). Their names stay importable from
+here.
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import pandas as pd
+
+from wallstress import findings as _findings
+from wallstress.errors import OutputError
+from wallstress.write import safety
+
+# moved to modules of their own; re-exported so that ``from wallstress.writers import ...`` keeps working
+from wallstress.write.flat import (
+    _write_flat,
+)
+from wallstress.write.parts import WriteReport, _Part, _sidecar
+from wallstress.write.xlsx.workbook import (
+    _write_in_place,
+    _write_xlsx,
+)
+
+OUTPUT_SUFFIXES: tuple[str, ...] = (".xlsx", ".csv", ".parquet")
+
+
+_REFUSED_SUFFIXES = {
+    ".xlsm": "macro-enabled workbooks are not written (macros cannot be carried over safely)",
+    ".xls": "the old binary Excel format is not written",
+    ".xlsb": "binary Excel workbooks are not written",
+    ".ods": "OpenDocument spreadsheets are not written yet",
+}
+
+
+SHEET_RESULTS = "wallstress results"
+
+
+SHEET_FINDINGS = "wallstress findings"
+
+
+SHEET_METHODS = "wallstress methods"
+
+
+DEFAULT_SHEET_NAMES: dict[str, str] = {
+    "results": SHEET_RESULTS,
+    "findings": SHEET_FINDINGS,
+    "methods": SHEET_METHODS,
+}
+
+
+def write_results(
+    analysis,
+    out_path,
+    source=None,
+    *,
+    in_place: bool = False,
+    escape_formulas: bool = False,
+    sheet_names: dict | None = None,
+) -> WriteReport:
+    """Write an analysis (results, findings, methods) next to the user's data.
+
+    Parameters
+    ----------
+    analysis : wallstress.result.Analysis
+        What the run produced; ``analysis.table`` is written as the results.
+    out_path : path-like or None
+        Output file; its suffix chooses the format (``.xlsx``, ``.csv``, ``.parquet``). May be None,
+        or the input workbook itself, only with ``in_place``.
+    source : StudyTable, optional
+        The study list as read (``path``, ``format``, ``sheet``, ``header_row``, ``sha256``,
+        ``encoding``, ``delimiter``, ``decimal``); None for DataFrame input.
+    in_place : bool
+        Add our sheets to the user's own ``.xlsx`` after a verified backup beside it.
+    escape_formulas : bool
+        CSV only: prefix formula-like text cells with a single quote.
+    sheet_names : dict, optional
+        Our sheet names by role (``results``, ``findings``, ``methods``); defaults
+        :data:`DEFAULT_SHEET_NAMES`. A name already used in the workbook gets a number.
+
+    Returns
+    -------
+    WriteReport
+        A list of the written paths, with ``notes``, ``formula_like`` findings and ``backup``.
+
+    Raises
+    ------
+    OutputError
+        Unsupported suffix, an output that would overwrite the input, an input changed since it was
+        read, a workbook open in a spreadsheet program (``in_place``), a table too big for xlsx, or a
+        folder that cannot be written.
+    """
+    names = dict(DEFAULT_SHEET_NAMES)
+    if sheet_names:
+        unknown = set(sheet_names) - set(names)
+        if unknown:
+            raise OutputError(
+                f"sheet_names has unknown role(s) {sorted(unknown)}; use {sorted(names)}"
+            )
+        names.update(sheet_names)
+    parts = [
+        _Part(names["results"], "", analysis.table, unit_columns="outputs"),
+        _Part(names["findings"], "findings", _findings_for_writing(analysis.findings)),
+    ]
+    return _write_bundle(
+        out_path,
+        parts,
+        analysis.methods or {},
+        source=source,
+        in_place=in_place,
+        escape_formulas=escape_formulas,
+        methods_sheet=names["methods"],
+    )
+
+
+def write_sheets(
+    out_path,
+    sheets: dict,
+    methods: dict,
+    *,
+    source=None,
+    in_place: bool = False,
+    escape_formulas: bool = False,
+    methods_sheet: str = "methods",
+) -> WriteReport:
+    """Write several tables (e.g. tracking: patients, visits, transitions, prevalence) and a methods record.
+
+    Parameters
+    ----------
+    out_path : path-like
+        ``.xlsx`` (one sheet per table, plus the methods sheet), ``.csv`` or ``.parquet`` (the first
+        table in ``out_path``, each other one in ``name.<sheet>.csv|parquet``, methods in
+        ``name.methods.json``).
+    sheets : dict of str -> DataFrame
+        Tables in order; names are sheet names (made valid and unique where needed).
+    methods : dict
+        The methods record (nested dicts and lists are flattened into readable rows).
+    source, in_place, escape_formulas
+        As in :func:`write_results`.
+    methods_sheet : str
+        Name of the methods sheet.
+
+    Returns
+    -------
+    WriteReport
+    """
+    if not sheets:
+        raise OutputError("write_sheets got no tables; pass sheets={'name': DataFrame, ...}")
+    parts = []
+    for i, (name, frame) in enumerate(sheets.items()):
+        if not isinstance(frame, pd.DataFrame):
+            raise OutputError(
+                f"sheets[{name!r}] is a {type(frame).__name__}, not a DataFrame; pass DataFrames"
+            )
+        parts.append(_Part(str(name), "" if i == 0 else _slug(str(name)), frame))
+    return _write_bundle(
+        out_path,
+        parts,
+        methods or {},
+        source=source,
+        in_place=in_place,
+        escape_formulas=escape_formulas,
+        methods_sheet=methods_sheet,
+    )
+
+
+def _write_bundle(out_path, parts, methods, *, source, in_place, escape_formulas, methods_sheet):
+    src_path = Path(source.path) if source is not None and getattr(source, "path", None) else None
+    src_hash_before = safety.sha256_file(src_path) if src_path and src_path.is_file() else None
+
+    if in_place:
+        report = _write_in_place(out_path, parts, methods, source, src_path, methods_sheet)
+    else:
+        if out_path is None:
+            raise OutputError(
+                "no output path given; pass -o OUT.xlsx|.csv|.parquet (or --in-place)"
+            )
+        out = Path(out_path)
+        suffix = _check_suffix(out)
+        planned = [out] + [_sidecar(out, p.key) for p in parts if p.key]
+        if suffix in (".csv", ".parquet"):
+            planned.append(_sidecar(out, "methods", ".json"))
+        for p in planned:
+            if safety.same_file(p, src_path):
+                raise OutputError(
+                    f"writing {str(p)!r} would overwrite your input; choose another -o or pass --in-place"
+                )
+        if suffix == ".xlsx":
+            report = _write_xlsx(out, parts, methods, source, src_path, methods_sheet)
+        else:
+            report = _write_flat(out, suffix, parts, methods, source, escape_formulas)
+
+    if src_hash_before is not None and not in_place:
+        if safety.sha256_file(src_path) != src_hash_before:  # pragma: no cover - defensive
+            raise OutputError(f"the input {str(src_path)!r} changed while writing; check it")
+    return report
+
+
+def _check_suffix(out: Path) -> str:
+    suffix = out.suffix.lower()
+    if suffix in _REFUSED_SUFFIXES:
+        raise OutputError(
+            f"cannot write {out.name!r}: {_REFUSED_SUFFIXES[suffix]}; "
+            f"choose an output ending in {', '.join(OUTPUT_SUFFIXES)}"
+        )
+    if suffix not in OUTPUT_SUFFIXES:
+        raise OutputError(
+            f"unknown output type {suffix or '(no suffix)'!r} for {out.name!r}; "
+            f"choose an output ending in {', '.join(OUTPUT_SUFFIXES)}"
+        )
+    return suffix
+
+
+def _findings_for_writing(findings) -> pd.DataFrame:
+    """The findings as given: Categorical text columns are turned into text by each writer, a slice
+    at a time (at 10^6 studies the findings as plain text would be several hundred MB)."""
+    if findings is None:
+        return _findings.empty()
+    return findings
+
+
+def _slug(name: str) -> str:
+    s = re.sub(r"[^0-9A-Za-z]+", "-", name.strip().lower()).strip("-")
+    return s or "sheet"
