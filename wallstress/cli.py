@@ -14,8 +14,24 @@ from pathlib import Path
 import typer
 
 from wallstress import __version__
+from wallstress.analysis.references import list_sets, load_set
+from wallstress.chunked import analyse_chunked
 from wallstress.errors import WallstressError
+from wallstress.jobs import (
+    analyse_file,
+    calibrate_file,
+    read_columns_map,
+    report_file,
+    run_demo,
+    track_file,
+)
 from wallstress.options import Options
+from wallstress.schema.outputs import METHOD_CHOICES
+from wallstress.schema.units import UNIT_CHOICES
+from wallstress.tracking.visits import SAME_DAY_RULES
+from wallstress.write.template import write_template
+
+DEFAULTS = Options()
 
 app = typer.Typer(
     add_completion=False,
@@ -31,42 +47,18 @@ EXIT_INPUT, EXIT_STRICT = 1, 3
 _state = {"debug": False}
 
 
-class Bsa(str, Enum):
-    dubois = "dubois"
-    mosteller = "mosteller"
-    haycock = "haycock"
-    gehan_george = "gehan_george"
-    boyd = "boyd"
+def _choices(name: str, values) -> type[Enum]:
+    """A typer choice list made from a tuple of method names (the tuples live with the formulas)."""
+    return Enum(name, {v: v for v in values}, type=str)
 
 
-class Mass(str, Enum):
-    ase_corrected = "ase_corrected"
-    penn = "penn"
-    area_length = "area_length"
-    truncated_ellipsoid = "truncated_ellipsoid"
-
-
-class Rwt(str, Enum):
-    posterior = "posterior"
-    septal_posterior = "septal_posterior"
-
-
-class EsPressure(str, Enum):
-    cuff_sbp = "cuff_sbp"
-    scaled_sbp = "scaled_sbp"
-    weighted_mean = "weighted_mean"
-    measured = "measured"
-
-
-class StressConstant(str, Enum):
-    published = "published"
-    exact = "exact"
-
-
-class Units(str, Enum):
-    auto = "auto"
-    mm = "mm"
-    cm = "cm"
+Bsa = _choices("Bsa", METHOD_CHOICES["bsa_method"])
+Mass = _choices("Mass", METHOD_CHOICES["mass_method"])
+Rwt = _choices("Rwt", METHOD_CHOICES["rwt_method"])
+EsPressure = _choices("EsPressure", METHOD_CHOICES["es_pressure"])
+StressConstant = _choices("StressConstant", METHOD_CHOICES["stress_constant"])
+Units = _choices("Units", UNIT_CHOICES)
+SameDay = _choices("SameDay", SAME_DAY_RULES)
 
 
 def _fail(exc: BaseException) -> None:
@@ -106,21 +98,22 @@ def _options(
     units: Units,
     sheet: str | None,
     columns: Path | None,
-    bsa: Bsa = Bsa.dubois,
-    mass: Mass = Mass.ase_corrected,
-    rwt: Rwt = Rwt.posterior,
-    es_pressure: EsPressure = EsPressure.cuff_sbp,
-    stress_constant: StressConstant = StressConstant.published,
+    bsa: Bsa | None = None,
+    mass: Mass | None = None,
+    rwt: Rwt | None = None,
+    es_pressure: EsPressure | None = None,
+    stress_constant: StressConstant | None = None,
 ) -> Options:
-    from wallstress.jobs import read_columns_map
-
+    chosen = {
+        "bsa_method": bsa,
+        "mass_method": mass,
+        "rwt_method": rwt,
+        "es_pressure": es_pressure,
+        "stress_constant": stress_constant,
+    }
     return Options(
+        **{k: v.value for k, v in chosen.items() if v is not None},
         reference=reference,
-        bsa_method=bsa.value,
-        mass_method=mass.value,
-        rwt_method=rwt.value,
-        es_pressure=es_pressure.value,
-        stress_constant=stress_constant.value,
         units=units.value,
         sheet=sheet,
         columns=read_columns_map(columns) if columns else {},
@@ -128,25 +121,31 @@ def _options(
 
 
 REF = typer.Option(
-    "ase_eacvi_2015",
+    DEFAULTS.reference,
     "--reference",
     "-r",
     help="Reference set name or a set CSV (see 'references').",
 )
-BSA = typer.Option(Bsa.dubois, "--bsa", help="Body surface area formula.")
+BSA = typer.Option(Bsa(DEFAULTS.bsa_method), "--bsa", help="Body surface area formula.")
 MASS = typer.Option(
-    Mass.ase_corrected, "--mass", help="LV mass formula (2D ones need the area columns)."
+    Mass(DEFAULTS.mass_method), "--mass", help="LV mass formula (2D ones need the area columns)."
 )
 RWT = typer.Option(
-    Rwt.posterior, "--rwt", help="Relative wall thickness: 2*PWd/LVIDd or (IVSd+PWd)/LVIDd."
+    Rwt(DEFAULTS.rwt_method),
+    "--rwt",
+    help="Relative wall thickness: 2*PWd/LVIDd or (IVSd+PWd)/LVIDd.",
 )
-ESP = typer.Option(EsPressure.cuff_sbp, "--es-pressure", help="End-systolic pressure estimate.")
+ESP = typer.Option(
+    EsPressure(DEFAULTS.es_pressure), "--es-pressure", help="End-systolic pressure estimate."
+)
 SC = typer.Option(
-    StressConstant.published,
+    StressConstant(DEFAULTS.stress_constant),
     "--stress-constant",
     help="Published constants (0.334, 1.35) or exact mmHg->kdyn/cm2.",
 )
-UNITS = typer.Option(Units.auto, "--units", help="Unit of LV dimensions when headers do not say.")
+UNITS = typer.Option(
+    Units(DEFAULTS.units), "--units", help="Unit of LV dimensions when headers do not say."
+)
 SHEET = typer.Option(
     None, "--sheet", help="Sheet to read (default: first sheet with recognised headers)."
 )
@@ -201,7 +200,6 @@ def analyse(
     quiet: bool = QUIET,
 ):
     """Every measure for every study, with flags and a methods record."""
-    from wallstress.jobs import analyse_file
 
     options = _guard(
         _options, reference, units, sheet, columns, bsa, mass, rwt, es_pressure, stress_constant
@@ -237,7 +235,6 @@ def _summarise(counts: dict, notes, written, quiet: bool, strict: bool, where: s
 
 
 def _analyse_in_chunks(studies, out, options, chunk_rows, escape_formulas, quiet, strict) -> None:
-    from wallstress.chunked import analyse_chunked
 
     def progress(done: int, total: int | None) -> None:
         if not quiet and sys.stderr.isatty():
@@ -274,8 +271,8 @@ def track(
         "--within-sd",
         help="Your lab's within-subject SD of LV mass [g] (LSC = 1.96*sqrt(2)*SD).",
     ),
-    same_day: str = typer.Option(
-        "mean", "--same-day", help="Studies of one patient on one day: 'mean' or 'last'."
+    same_day: SameDay = typer.Option(
+        SameDay(SAME_DAY_RULES[0]), "--same-day", help="Studies of one patient on one day."
     ),
     units: Units = UNITS,
     sheet: str = SHEET,
@@ -283,11 +280,10 @@ def track(
     quiet: bool = QUIET,
 ):
     """Per-patient change against reproducibility, slopes and geometry transitions."""
-    from wallstress.jobs import track_file
 
     options = _guard(_options, reference, units, sheet, columns)
     result = _guard(
-        track_file, studies, out, options, within_subject_sd_g=within_sd, same_day=same_day
+        track_file, studies, out, options, within_subject_sd_g=within_sd, same_day=same_day.value
     )
     if not quiet:
         for line in result.notes:
@@ -310,7 +306,6 @@ def report(
     quiet: bool = QUIET,
 ):
     """Pictures and per-patient pages in one HTML file that works offline."""
-    from wallstress.jobs import report_file
 
     options = _guard(_options, reference, units, sheet, columns)
     path = _guard(report_file, studies, out, options, figures_dir=figures)
@@ -321,7 +316,6 @@ def report(
 @app.command()
 def template(out: Path = typer.Option(..., "--out", "-o", help="Output .xlsx")):
     """An empty study list with the expected headers, units and input hints."""
-    from wallstress.write.template import write_template
 
     path = _guard(write_template, out)
     typer.echo(f"wrote {path}")
@@ -332,7 +326,6 @@ def references(
     name: str = typer.Argument(None, help="A set name or set CSV; omit to list the bundled sets."),
 ):
     """The cut-offs in force, each with its source and whether it was checked."""
-    from wallstress.analysis.references import list_sets, load_set
 
     if not name:
         for n in list_sets():
@@ -364,7 +357,7 @@ def calibrate(
         ..., "--out", "-o", help="Output reference set .csv (use it with --reference)."
     ),
     base: str = typer.Option(
-        "ase_eacvi_2015", "--base", help="Set whose rows you do not fit are kept from."
+        DEFAULTS.reference, "--base", help="Set whose rows you do not fit are kept from."
     ),
     min_per_sex: int = typer.Option(
         120, "--min-per-sex", help="Subjects needed per sex (CLSI-style nonparametric limit: 120)."
@@ -379,7 +372,6 @@ def calibrate(
     columns: Path = COLUMNS,
 ):
     """Your lab's own reference limits and stress-shortening line from its healthy subjects."""
-    from wallstress.jobs import calibrate_file
 
     options = _guard(_options, base, units, sheet, columns)
     result = _guard(
@@ -396,7 +388,6 @@ def demo(
     folder: Path = typer.Argument(Path("wallstress-demo"), help="Where to write the demo outputs."),
 ):
     """The whole job on the bundled, invented sample studies."""
-    from wallstress.jobs import run_demo
 
     result = _guard(run_demo, folder)
     for line in result.notes:

@@ -10,7 +10,7 @@ import wallstress
 from tests.conftest import canonical_row
 from wallstress import Options
 from wallstress import findings as fnd
-from wallstress.schema.fields import OUTPUT_COLUMNS
+from wallstress.schema.outputs import OUTPUT_COLUMNS
 
 
 def test_worked_example_vs_sources(worked_example):

@@ -549,7 +549,9 @@ def test_raw_studies_are_analysed_first(monkeypatch):
         )
 
     monkeypatch.setitem(
-        sys.modules, "wallstress.analysis.pipeline", types.SimpleNamespace(analyse_with_findings=fake)
+        sys.modules,
+        "wallstress.analysis.pipeline",
+        types.SimpleNamespace(analyse_with_findings=fake),
     )
     raw = pd.DataFrame(
         {"patient_id": ["A", "A"], "study_date": pd.to_datetime(["2020-01-01", "2021-01-01"])}

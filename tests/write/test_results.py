@@ -27,8 +27,8 @@ from wallstress import __version__
 from wallstress import findings as F
 from wallstress.analysis.result import Analysis
 from wallstress.errors import OutputError
-from wallstress.schema.fields import OUTPUT_COLUMNS
-from wallstress.schema.outputs import canonical_header, header_with_unit
+from wallstress.schema.display import canonical_header, header_with_unit
+from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.write import safety
 from wallstress.write.methods_sheet import from_memory_items
 from wallstress.write.results import write_results, write_sheets

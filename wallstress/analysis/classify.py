@@ -27,23 +27,28 @@ import numpy as np
 import pandas as pd
 
 from wallstress.analysis.references import ReferenceSet
+from wallstress.schema.fields import SEXES
+from wallstress.schema.outputs import (
+    CONCENTRIC_HYPERTROPHY,
+    CONCENTRIC_REMODELLING,
+    ECCENTRIC_HYPERTROPHY,
+    NORMAL,
+)
 
-GEOMETRY_4 = ("normal", "concentric_remodelling", "eccentric_hypertrophy", "concentric_hypertrophy")
+# code order: 1 + mass increased * 2 + rwt increased
+GEOMETRY_4 = (NORMAL, CONCENTRIC_REMODELLING, ECCENTRIC_HYPERTROPHY, CONCENTRIC_HYPERTROPHY)
 
 # (mass increased, rwt increased, dilated) -> class
 GEOMETRY_8 = {
-    (False, False, False): "normal",
-    (False, True, False): "concentric_remodelling",
+    (False, False, False): NORMAL,
+    (False, True, False): CONCENTRIC_REMODELLING,
     (False, False, True): "eccentric_remodelling",
     (False, True, True): "dilated_concentric_remodelling",
-    (True, True, False): "concentric_hypertrophy",
+    (True, True, False): CONCENTRIC_HYPERTROPHY,
     (True, True, True): "mixed_hypertrophy",
     (True, False, True): "dilated_hypertrophy",
-    (True, False, False): "eccentric_hypertrophy",
+    (True, False, False): ECCENTRIC_HYPERTROPHY,
 }
-
-
-SEXES: tuple[str, ...] = ("F", "M")
 
 
 def _sex_array(sex) -> np.ndarray:

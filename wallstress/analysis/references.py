@@ -26,6 +26,8 @@ import pandas as pd
 
 from wallstress.bundled import data_dir
 from wallstress.errors import ReferenceSetError
+from wallstress.options import Options
+from wallstress.schema.fields import SEXES
 
 SET_COLUMNS = (
     "kind",
@@ -44,7 +46,7 @@ UPWARD_GRADES = ("increased", "mild", "moderate", "severe")
 DOWNWARD_GRADES = ("below_normal",)
 COMPARISONS = (">", ">=", "<", "<=")
 VERIFIED = ("published", "from_memory", "computed", "lab")
-DEFAULT_SET = "ase_eacvi_2015"
+DEFAULT_SET = Options.reference  # the set used when none is named
 MASS_INDEXES = ("lvmi_bsa_g_m2", "lvmi_h27_g_m2_7")
 
 
@@ -145,7 +147,7 @@ class ReferenceSet:
             c = Cutoff(
                 float(r.value), str(r.comparison), str(r.source), str(r.verified), str(r.grade)
             )
-            for sex in ("F", "M") if _text(r.sex) in ("", "both", "all") else (str(r.sex),):
+            for sex in SEXES if _text(r.sex) in ("", "both", "all") else (str(r.sex),):
                 self._cutoffs.setdefault((r.measure, sex), []).append(c)
 
     def __repr__(self) -> str:

@@ -54,7 +54,13 @@ import numpy as np
 import pandas as pd
 
 from wallstress import __version__
-from wallstress.analysis.references import SET_COLUMNS, UPWARD_GRADES, ReferenceSet, load_set
+from wallstress.analysis.references import (
+    DEFAULT_SET,
+    SET_COLUMNS,
+    UPWARD_GRADES,
+    ReferenceSet,
+    load_set,
+)
 from wallstress.calibration.limit_stats import (
     CENTILE_METHOD_TEXT,
     LOWER_LIMIT_CENTILE,
@@ -166,7 +172,7 @@ def _base_cutoffs(base: ReferenceSet) -> pd.DataFrame:
 def calibrate(
     frame_or_analysis,
     *,
-    base_set: str = "ase_eacvi_2015",
+    base_set: str = DEFAULT_SET,
     lab_name: str = "lab",
     min_per_sex: int = CLSI_MIN_PER_SEX,
     allow_small: bool = False,

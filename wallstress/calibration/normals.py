@@ -20,6 +20,7 @@ import pandas as pd
 
 from wallstress.analysis.result import Analysis
 from wallstress.errors import InputError
+from wallstress.schema.fields import SEXES
 
 CLSI_MIN_PER_SEX = 120
 """Reference subjects per partition for a nonparametric interval (CLSI EP28-A3c, 2010; from memory)."""
@@ -33,9 +34,6 @@ effect the largest value or two; common practice, no source)."""
 EXCLUDING_FLAGS: tuple[str, ...] = ("_impossible", "lvids_not_below_lvidd", "dbp_not_below_sbp")
 """Flag codes (or parts of codes) that exclude a subject: the pipeline found an error in an input
 the fitted measures depend on."""
-
-
-SEXES = ("F", "M")
 
 
 def _as_frame(frame_or_analysis) -> tuple[pd.DataFrame, dict]:

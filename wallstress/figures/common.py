@@ -19,6 +19,9 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
+from wallstress.schema.fields import SEXES
+from wallstress.schema.outputs import GEOMETRY_CLASSES, in_words
+
 # Okabe-Ito palette (Okabe & Ito 2002).
 OKABE_ITO: dict[str, str] = {
     "black": "#000000",
@@ -35,9 +38,6 @@ OKABE_ITO: dict[str, str] = {
 GREY = "#8C8C8C"
 
 
-SEXES: tuple[str, ...] = ("F", "M")
-
-
 SEX_LABELS: dict[str, str] = {"F": "women", "M": "men", "": "sex not given"}
 
 
@@ -47,19 +47,8 @@ SEX_COLOURS: dict[str, str] = {"F": OKABE_ITO["vermillion"], "M": OKABE_ITO["blu
 SEX_MARKERS: dict[str, str] = {"F": "o", "M": "s", "": "^"}
 
 
-GEOMETRY_CLASSES: tuple[str, ...] = (
-    "normal",
-    "concentric_remodelling",
-    "concentric_hypertrophy",
-    "eccentric_hypertrophy",
-)
-
-
 GEOMETRY_LABELS: dict[str, str] = {
-    "normal": "normal",
-    "concentric_remodelling": "concentric remodelling",
-    "concentric_hypertrophy": "concentric hypertrophy",
-    "eccentric_hypertrophy": "eccentric hypertrophy",
+    **{g: in_words(g) for g in GEOMETRY_CLASSES},
     "": "undetermined",
 }
 

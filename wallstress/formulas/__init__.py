@@ -19,30 +19,28 @@ from wallstress.formulas.constants import (
     MYOCARDIAL_DENSITY_2D_G_ML,
     MYOCARDIAL_DENSITY_G_ML,
 )
-from wallstress.formulas.function import (
-    MIDWALL_MODELS,
-    PREDICTED_MASS_COEFFICIENTS_FROM_MEMORY,
-    PREDICTED_MASS_KEYS,
-    appropriateness_pct,
-    ejection_fraction_pct,
-    fractional_shortening_pct,
-    midwall_fs_pct,
-    predicted_from_line,
-    predicted_lv_mass_g,
-    stress_corrected_pct,
-    teichholz_volume_ml,
-    vcf_circ_s,
-    vcfc_circ_s,
-)
 from wallstress.formulas.mass import (
     AREA_MASS_METHODS,
     LINEAR_MASS_METHODS,
+    PREDICTED_MASS_COEFFICIENTS_FROM_MEMORY,
+    PREDICTED_MASS_KEYS,
     RWT_METHODS,
+    appropriateness_pct,
     concentricity_g_ml23,
     lv_mass_area_length_g,
     lv_mass_linear_g,
     lv_mass_truncated_ellipsoid_g,
+    predicted_lv_mass_g,
     relative_wall_thickness,
+)
+from wallstress.formulas.shortening import (
+    MIDWALL_MODELS,
+    fractional_shortening_pct,
+    midwall_fs_pct,
+    predicted_from_line,
+    stress_corrected_pct,
+    vcf_circ_s,
+    vcfc_circ_s,
 )
 from wallstress.formulas.stress import (
     ES_PRESSURE_METHODS,
@@ -54,6 +52,7 @@ from wallstress.formulas.stress import (
     meridional_es_stress_kdyn_cm2,
     stroke_work_g_m,
 )
+from wallstress.formulas.volumes import ejection_fraction_pct, teichholz_volume_ml
 
 __all__ = [
     "AREA_MASS_METHODS",

@@ -8,6 +8,7 @@ result as a numpy float, anything else as an ndarray.
 
 from __future__ import annotations
 
+import numbers
 from collections.abc import Sequence
 
 import numpy as np
@@ -117,3 +118,13 @@ def check_choice(name: str, value: str, valid: Sequence[str]) -> str:
         listed = ", ".join(repr(v) for v in valid)
         raise ValueError(f"{name}={value!r} is not a known method; pass one of: {listed}")
     return value
+
+
+def require_real(name: str, value) -> float:
+    if (
+        isinstance(value, bool)
+        or not isinstance(value, numbers.Real)
+        or not np.isfinite(float(value))
+    ):
+        raise ValueError(f"{name}={value!r} must be a finite real number")
+    return float(value)

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from wallstress.formulas._arrays import as_arrays, check_choice, positive, restore
+from wallstress.formulas._arrays import as_arrays, check_choice, positive, require_real, restore
 from wallstress.formulas.constants import MYOCARDIAL_DENSITY_2D_G_ML, MYOCARDIAL_DENSITY_G_ML
 
 LINEAR_MASS_METHODS: tuple[str, ...] = ("ase_corrected", "penn")
@@ -24,6 +24,19 @@ _ASE_INTERCEPT_G = 0.6  # Devereux 1986, corrected-ASE equation [g] (grams, not 
 _PENN_INTERCEPT_G = -13.6
 # Schiller 1989 / Lang 2015 appendix: area-length and truncated ellipsoid carry 5/6 and 2/3 factors.
 _AREA_LENGTH_FACTOR = 5.0 / 6.0
+
+# Keys of the predicted-mass equation (de Simone 1998 form, see predicted_lv_mass_g).
+PREDICTED_MASS_KEYS: tuple[str, ...] = ("intercept", "height27", "stroke_work", "sex")
+# de Simone 1998 coefficients as recalled, NOT read in the paper (from memory). The pipeline takes
+# the coefficients in force from reference_tables; this dict is for examples and tests only.
+PREDICTED_MASS_COEFFICIENTS_FROM_MEMORY: dict[str, float] = {
+    "intercept": 55.37,
+    "height27": 6.64,
+    "stroke_work": 0.64,
+    "sex": -18.07,
+}
+_SEX_CODE_MALE = 1.0  # de Simone 1998 coding (from memory): 1 = male, 2 = female
+_SEX_CODE_FEMALE = 2.0
 
 
 def lv_mass_linear_g(ivsd_cm, lvidd_cm, pwd_cm, method: str = "ase_corrected"):
@@ -281,3 +294,100 @@ def concentricity_g_ml23(lv_mass_g, edv_ml):
     """
     (m, v), template = as_arrays(lv_mass_g, edv_ml)
     return restore(positive(m) / positive(v) ** (2.0 / 3.0), template)
+
+
+def predicted_lv_mass_g(height_cm, stroke_work_g_m, sex_is_male, coefficients: dict):
+    """LV mass predicted from height, stroke work and sex (de Simone form).
+
+    Parameters
+    ----------
+    height_cm : scalar, ndarray or Series
+        Body height. [cm]
+    stroke_work_g_m : scalar, ndarray or Series
+        Stroke work, e.g. from ``stress.stroke_work_g_m``. [g*m]
+    sex_is_male : bool, ndarray or Series
+        True (1) for male, False (0) for female; anything else (NaN, None, pandas NA) is unknown
+        and gives NaN.
+    coefficients : dict
+        ``{"intercept": .., "height27": .., "stroke_work": .., "sex": ..}`` (``PREDICTED_MASS_KEYS``),
+        taken from a reference table. Extra keys are ignored.
+
+    Returns
+    -------
+    scalar, ndarray or Series
+        Predicted LV mass. [g]
+
+    Raises
+    ------
+    ValueError
+        If a coefficient is missing or not a finite number.
+
+    Notes
+    -----
+    ``LVM_pred = intercept + height27 * (H/100)^2.7 + stroke_work * SW + sex * code`` with
+    ``code = 1`` for male and ``2`` for female. The coefficients recalled for de Simone 1998 are in
+    ``PREDICTED_MASS_COEFFICIENTS_FROM_MEMORY`` (55.37, 6.64, 0.64, -18.07; from memory, not read).
+    Observed mass above 128 % of predicted is "inappropriate" (rule checked). Domain: H > 0,
+    SW > 0; otherwise NaN.
+
+    References
+    ----------
+    .. [1] de Simone G, Devereux RB, Kimball TR, et al. Interaction between body size and cardiac
+       workload: influence on left ventricular mass during body growth and adulthood.
+       Hypertension. 1998;31:1077-1082. (citation from memory)
+    .. [2] de Simone G, Verdecchia P, Pede S, Gorini M, Maggioni AP. Prognosis of inappropriate
+       left ventricular mass in hypertension: the MAVI Study. Hypertension. 2002;40:470-476.
+       (citation from memory)
+    """
+    if not isinstance(coefficients, dict):
+        raise ValueError(
+            f"coefficients must be a dict with keys {PREDICTED_MASS_KEYS}, "
+            f"got {type(coefficients).__name__}"
+        )
+    missing = [k for k in PREDICTED_MASS_KEYS if k not in coefficients]
+    if missing:
+        raise ValueError(
+            f"coefficients is missing {missing}; pass all of {PREDICTED_MASS_KEYS} "
+            "(e.g. from the reference table of the set in use)"
+        )
+    c = {k: require_real(f"coefficients[{k!r}]", coefficients[k]) for k in PREDICTED_MASS_KEYS}
+    (h, sw, male), template = as_arrays(height_cm, stroke_work_g_m, sex_is_male)
+    sex_code = np.where(
+        male == 1.0, _SEX_CODE_MALE, np.where(male == 0.0, _SEX_CODE_FEMALE, np.nan)
+    )
+    out = (
+        c["intercept"]
+        + c["height27"] * (positive(h) / 100.0) ** 2.7
+        + c["stroke_work"] * positive(sw)
+        + c["sex"] * sex_code
+    )
+    return restore(out, template)
+
+
+def appropriateness_pct(observed_g, predicted_g):
+    """Observed LV mass as a percentage of the mass predicted for the workload.
+
+    Parameters
+    ----------
+    observed_g : scalar, ndarray or Series
+        Observed LV mass. [g]
+    predicted_g : scalar, ndarray or Series
+        Predicted LV mass, e.g. from ``predicted_lv_mass_g``. [g]
+
+    Returns
+    -------
+    scalar, ndarray or Series
+        ``observed / predicted * 100``. [% of predicted]
+
+    Notes
+    -----
+    Domain: both > 0; otherwise NaN. Above 128 % is "inappropriate" LV mass (de Simone).
+
+    References
+    ----------
+    .. [1] de Simone G, Verdecchia P, Pede S, Gorini M, Maggioni AP. Prognosis of inappropriate
+       left ventricular mass in hypertension: the MAVI Study. Hypertension. 2002;40:470-476.
+       (citation from memory)
+    """
+    (obs, pred), template = as_arrays(observed_g, predicted_g)
+    return restore(positive(obs) / positive(pred) * 100.0, template)

@@ -12,6 +12,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from wallstress.schema import units
+from wallstress.schema.fields import SEXES
 
 MISSING_TOKENS = frozenset(
     {
@@ -247,7 +248,7 @@ def _numbers_from_text(t: pd.Series, quantity: str):
     return value, cell_factor, bad
 
 
-SEX_DTYPE = pd.CategoricalDtype(["F", "M"], ordered=False)
+SEX_DTYPE = pd.CategoricalDtype(list(SEXES), ordered=False)
 
 
 def parse_sex(s: pd.Series) -> tuple[pd.Series, dict[str, np.ndarray]]:

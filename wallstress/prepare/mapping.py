@@ -46,9 +46,7 @@ from wallstress.schema.headers import (
     check_columns_option,
     match_header,
 )
-
-UNIT_OPTIONS: tuple[str, ...] = ("auto", "mm", "cm")
-
+from wallstress.schema.units import UNIT_CHOICES
 
 UNIT_BASES: tuple[str, ...] = ("canonical name", "header", "option", "inferred")
 
@@ -104,12 +102,12 @@ def map_columns(raw: pd.DataFrame, options: Options | None = None) -> Mapped:
     ------
     InputError
         ``options.columns`` names an unknown field, or ``options.units`` is not one of
-        ``UNIT_OPTIONS``.
+        ``UNIT_CHOICES``.
     """
     options = options or Options()
-    if options.units not in UNIT_OPTIONS:
+    if options.units not in UNIT_CHOICES:
         raise InputError(
-            f"units={options.units!r} is not valid; use one of {', '.join(UNIT_OPTIONS)}"
+            f"units={options.units!r} is not valid; use one of {', '.join(UNIT_CHOICES)}"
         )
     cols_opt = check_columns_option(options.columns)
     n = len(raw)

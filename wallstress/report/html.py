@@ -18,11 +18,12 @@ import pandas as pd
 
 from wallstress.figures import save as fig_mod
 from wallstress.figures.common import GEOMETRY_LABELS
+from wallstress.schema.outputs import OUTPUTS
 
 MAX_TABLE_ROWS = 500
 
 
-COLUMN_LABELS: dict[str, str] = {
+_OTHER_LABELS: dict[str, str] = {
     "row": "Data row",
     "study_id": "Study",
     "patient_id": "Patient",
@@ -30,19 +31,6 @@ COLUMN_LABELS: dict[str, str] = {
     "sex": "Sex",
     "age_years": "Age [years]",
     "years_since_baseline": "Years since first study",
-    "bsa_m2": "BSA [m²]",
-    "lv_mass_g": "LV mass [g]",
-    "lvmi_bsa_g_m2": "LVMI/BSA [g/m²]",
-    "lvmi_h27_g_m2_7": "LVMI/height^2.7 [g/m^2.7]",
-    "rwt": "RWT",
-    "geometry": "Geometry",
-    "fs_pct": "FS [%]",
-    "ef_teichholz_pct": "EF Teichholz [%]",
-    "mess_kdyn_cm2": "mESS [kdyn/cm²]",
-    "cess_kdyn_cm2": "cESS [kdyn/cm²]",
-    "midwall_fs_pct": "Midwall FS [%]",
-    "midwall_fs_predicted_pct": "Midwall FS predicted [%]",
-    "midwall_fs_stress_corrected_pct": "Stress-corrected midwall FS [%]",
     "sbp_mmhg": "SBP [mmHg]",
     "dbp_mmhg": "DBP [mmHg]",
     "verdict": "Verdict",
@@ -63,7 +51,22 @@ COLUMN_LABELS: dict[str, str] = {
     "lv_mass_real_change_from_baseline": "Beyond LSC",
     "follow_up_year": "Follow-up year",
     "verdict_text": "In words",
-    "flags": "Flags",
+}
+
+
+def _shown_unit(unit: str) -> str:
+    return unit.replace("m2", "m²")
+
+
+# Labels of every column the report shows: our outputs from the registry, then the others.
+COLUMN_LABELS: dict[str, str] = {
+    **{
+        o.name: f"{o.label} [{_shown_unit(o.unit)}]"
+        if o.is_number and o.unit != "ratio"
+        else o.label
+        for o in OUTPUTS
+    },
+    **_OTHER_LABELS,
 }
 
 

@@ -35,6 +35,7 @@ from wallstress.report.html import (
     _verified_text,
 )
 from wallstress.report.inputs import _coefficients, _geometry_labels, _midwall_line, _sex_labels
+from wallstress.schema.outputs import SUMMARY_MEASURES
 
 CAUTION = (
     "wallstress supports, and never replaces, a qualified clinician's judgement and the local "
@@ -50,19 +51,6 @@ UNVERIFIED_NOTE = (
 
 
 SEVERITY_RANK: dict[str, int] = {"note": 0, "warning": 1, "error": 2}
-
-
-SUMMARY_MEASURES: tuple[str, ...] = (
-    "lv_mass_g",
-    "lvmi_bsa_g_m2",
-    "lvmi_h27_g_m2_7",
-    "rwt",
-    "fs_pct",
-    "mess_kdyn_cm2",
-    "cess_kdyn_cm2",
-    "midwall_fs_pct",
-    "midwall_fs_stress_corrected_pct",
-)
 
 
 CUTOFF_MEASURES: tuple[str, ...] = (

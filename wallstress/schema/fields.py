@@ -16,6 +16,8 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass, field
 
+SEXES: tuple[str, ...] = ("F", "M")  # the canonical sex codes, women first
+
 
 @dataclass(frozen=True)
 class Field:
@@ -29,7 +31,6 @@ class Field:
     hard: tuple[float, float] | None = None
     typical: tuple[float, float] | None = None
     aliases: tuple[str, ...] = field(default_factory=tuple)
-    required_for: tuple[str, ...] = field(default_factory=tuple)
 
 
 def _f(*args, **kwargs) -> Field:
@@ -239,7 +240,6 @@ FIELDS: tuple[Field, ...] = (
         (0.1, 4.0),
         (0.5, 2.0),
         aliases=("ivsd", "ivs d", "ivs", "septum", "ivstd", "ivs diastole", "septal thickness"),
-        required_for=("lv_mass_g", "rwt"),
     ),
     _f(
         "lvidd_cm",
@@ -250,7 +250,6 @@ FIELDS: tuple[Field, ...] = (
         (1.0, 12.0),
         (3.0, 7.5),
         aliases=("lvidd", "lvid d", "lvedd", "lvdd", "lvid diastole", "edd"),
-        required_for=("lv_mass_g", "rwt", "fs_pct"),
     ),
     _f(
         "pwd_cm",
@@ -270,7 +269,6 @@ FIELDS: tuple[Field, ...] = (
             "posterior wall",
             "pw diastole",
         ),
-        required_for=("lv_mass_g", "rwt"),
     ),
     _f(
         "ivss_cm",
@@ -291,7 +289,6 @@ FIELDS: tuple[Field, ...] = (
         (0.5, 11.0),
         (1.5, 6.5),
         aliases=("lvids", "lvid s", "lvesd", "lvds", "lvid systole", "esd"),
-        required_for=("fs_pct", "mess_kdyn_cm2"),
     ),
     _f(
         "pws_cm",
@@ -302,7 +299,6 @@ FIELDS: tuple[Field, ...] = (
         (0.1, 5.0),
         (0.6, 2.6),
         aliases=("pws", "lvpws", "pw s", "lvpw s", "lvpwts", "pwts", "pw systole"),
-        required_for=("mess_kdyn_cm2",),
     ),
     _f(
         "lvedv_ml",
@@ -415,43 +411,3 @@ def _alias_index() -> dict[str, str]:
 
 
 ALIASES: dict[str, str] = _alias_index()
-
-
-# Output columns, in the order they are appended after the user's columns. Units are in the names.
-OUTPUT_COLUMNS: tuple[str, ...] = (
-    "bsa_m2",
-    "lv_mass_g",
-    "lv_mass_method",
-    "lvmi_bsa_g_m2",
-    "lvmi_h27_g_m2_7",
-    "lvmi_h_g_m",
-    "rwt",
-    "geometry",
-    "edv_ml",
-    "edv_source",
-    "edv_index_ml_m2",
-    "concentricity_g_ml23",
-    "geometry_8",
-    "lvmi_grade",
-    "rwt_grade",
-    "lvidd_grade",
-    "ivsd_grade",
-    "pwd_grade",
-    "fs_pct",
-    "edv_teichholz_ml",
-    "esv_teichholz_ml",
-    "sv_teichholz_ml",
-    "ef_teichholz_pct",
-    "es_pressure_mmhg",
-    "mess_kdyn_cm2",
-    "cess_kdyn_cm2",
-    "midwall_fs_pct",
-    "midwall_fs_predicted_pct",
-    "midwall_fs_stress_corrected_pct",
-    "vcf_circ_s",
-    "vcfc_circ_s",
-    "stroke_work_g_m",
-    "lv_mass_predicted_g",
-    "lv_mass_appropriateness_pct",
-    "flags",
-)

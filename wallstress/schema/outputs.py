@@ -1,144 +1,529 @@
-"""Units of output columns: ``"name [unit]"`` headers and the xlsx display formats by unit.
+"""The registry of output columns: one row per column that ``analyse`` adds after the user's columns.
 
-The unit of a column comes from our output list, then the schema's fields, then the ending of its
-name (``_g_m2``, ``_kdyn_cm2``...), so that tables of other modules (tracking) get units too. Values are
-always stored at full precision; the formats only say how a spreadsheet shows them.
+Each row names the column, its unit, a label a clinician reads, the function that computes it (one
+hop from a column to its formula), the inputs it needs, and, per method, the equation, the source
+and whether the source was read (``published``) or recalled (``from_memory``). Column order,
+units in headers, the methods record and report labels are all taken from here.
+
+Adding a measure: write the pure function in ``wallstress/formulas/``, add its row here, compute it
+in ``wallstress/analysis/measures.py``.
 """
 
 from __future__ import annotations
 
-import re
+from dataclasses import dataclass, field
+from types import MappingProxyType
 
-from wallstress.schema.fields import BY_NAME
+from wallstress.formulas import body_size, mass, stress
 
-# Units of our output columns (schema.OUTPUT_COLUMNS); text columns say what they hold.
-OUTPUT_UNITS: dict[str, str] = {
-    "bsa_m2": "m2",
-    "lv_mass_g": "g",
-    "lv_mass_method": "text",
-    "lvmi_bsa_g_m2": "g/m2",
-    "lvmi_h27_g_m2_7": "g/m^2.7",
-    "lvmi_h_g_m": "g/m",
-    "rwt": "ratio",
-    "geometry": "class",
-    "edv_ml": "mL",
-    "edv_source": "text",
-    "edv_index_ml_m2": "mL/m2",
-    "concentricity_g_ml23": "g/mL^(2/3)",
-    "geometry_8": "class",
-    "lvmi_grade": "grade",
-    "rwt_grade": "grade",
-    "lvidd_grade": "grade",
-    "ivsd_grade": "grade",
-    "pwd_grade": "grade",
-    "fs_pct": "%",
-    "edv_teichholz_ml": "mL",
-    "esv_teichholz_ml": "mL",
-    "sv_teichholz_ml": "mL",
-    "ef_teichholz_pct": "%",
-    "es_pressure_mmhg": "mmHg",
-    "mess_kdyn_cm2": "kdyn/cm2",
-    "cess_kdyn_cm2": "kdyn/cm2",
-    "midwall_fs_pct": "%",
-    "midwall_fs_predicted_pct": "%",
-    "midwall_fs_stress_corrected_pct": "%",
-    "vcf_circ_s": "circ/s",
-    "vcfc_circ_s": "circ/s",
-    "stroke_work_g_m": "g*m",
-    "lv_mass_predicted_g": "g",
-    "lv_mass_appropriateness_pct": "%",
-    "flags": "codes",
-}
+PUBLISHED, FROM_MEMORY = "published", "from_memory"
 
 
-# Name endings -> unit, longest first (for columns of other tables, e.g. tracking).
-_SUFFIX_UNITS: tuple[tuple[str, str], ...] = (
-    ("_g_m2_7_per_year", "g/m^2.7/year"),
-    ("_g_m2_per_year", "g/m2/year"),
-    ("_g_per_year", "g/year"),
-    ("_pct_per_year", "%/year"),
-    ("_g_m2_7", "g/m^2.7"),
-    ("_kdyn_cm2", "kdyn/cm2"),
-    ("_g_ml23", "g/mL^(2/3)"),
-    ("_ml_m2", "mL/m2"),
-    ("_circ_s", "circ/s"),
-    ("_g_m2", "g/m2"),
-    ("_mmhg", "mmHg"),
-    ("_years", "years"),
-    ("_days", "days"),
-    ("_g_m", "g/m"),
-    ("_cm2", "cm2"),
-    ("_bpm", "bpm"),
-    ("_pct", "%"),
-    ("_m2", "m2"),
-    ("_cm", "cm"),
-    ("_kg", "kg"),
-    ("_ml", "mL"),
-    ("_ms", "ms"),
-    ("_g", "g"),
+# The four geometry classes (Ganau 1992), in reading order; "" where a row cannot be classed.
+GEOMETRY_CLASSES: tuple[str, ...] = (
+    NORMAL := "normal",
+    CONCENTRIC_REMODELLING := "concentric_remodelling",
+    CONCENTRIC_HYPERTROPHY := "concentric_hypertrophy",
+    ECCENTRIC_HYPERTROPHY := "eccentric_hypertrophy",
+)
+HYPERTROPHY: tuple[str, ...] = (CONCENTRIC_HYPERTROPHY, ECCENTRIC_HYPERTROPHY)
+
+
+def in_words(value: str) -> str:
+    """A class, grade or verdict code as words: ``concentric_remodelling`` -> ``concentric remodelling``."""
+    return str(value).replace("_", " ")
+
+
+@dataclass(frozen=True)
+class Method:
+    """One way of computing an output: its equation as text, the source, how sure we are of it."""
+
+    equation: str
+    source: str
+    verified: str = PUBLISHED  # "published" (read in the source) or "from_memory"
+
+
+@dataclass(frozen=True)
+class Output:
+    """One output column."""
+
+    name: str
+    unit: str  # a unit ("g", "g/m2", "%"), or what a text column holds ("class", "grade", "text")
+    label: str  # what a clinician reads (the unit is added where it is shown)
+    formula: str  # the function that computes it, as "module.function" under wallstress
+    inputs: tuple[str, ...] = ()  # canonical input fields it needs (the first unit of each)
+    methods: MappingProxyType = field(default_factory=lambda: MappingProxyType({}))
+    option: str = ""  # the Options field that chooses among ``methods``
+    decimals: int | None = None  # how many decimals a reader needs (None: text)
+    summary: bool = False  # in the report's summary of measures
+    tracked: str = ""  # stem of its follow-up columns (``lv_mass`` -> ``lv_mass_first_g``)
+
+    @property
+    def is_number(self) -> bool:
+        return self.decimals is not None
+
+
+def _methods(**by_name: Method) -> MappingProxyType:
+    return MappingProxyType(by_name)
+
+
+def _one(equation: str, source: str, verified: str = PUBLISHED) -> MappingProxyType:
+    return _methods(**{"": Method(equation, source, verified)})
+
+
+LANG_2015 = "Lang RM et al., J Am Soc Echocardiogr 2015;28:1"
+LANG_2005 = "Lang RM et al., J Am Soc Echocardiogr 2005;18:1440"
+TEICHHOLZ = "Teichholz LE et al., Am J Cardiol 1976;37:7"
+SCHILLER = "Schiller NB et al., J Am Soc Echocardiogr 1989;2:358; Lang RM et al. 2005/2015"
+DE_SIMONE_1994 = "de Simone G et al., J Am Coll Cardiol 1994;23:1444"
+COLAN = "Colan SD et al., J Am Coll Cardiol 1984;4:715 (from memory)"
+LINEAR = ("ivsd_cm", "lvidd_cm", "pwd_cm")
+
+OUTPUTS: tuple[Output, ...] = (
+    Output(
+        "bsa_m2",
+        "m2",
+        "BSA",
+        "formulas.body_size.bsa_m2",
+        inputs=("height_cm", "weight_kg"),
+        option="bsa_method",
+        decimals=2,
+        methods=_methods(
+            dubois=Method(
+                "0.007184 * W^0.425 * H^0.725", "DuBois D, DuBois EF, Arch Intern Med 1916;17:863"
+            ),
+            mosteller=Method("sqrt(H * W / 3600)", "Mosteller RD, N Engl J Med 1987;317:1098"),
+            haycock=Method(
+                "0.024265 * H^0.3964 * W^0.5378", "Haycock GB et al., J Pediatr 1978;93:62"
+            ),
+            gehan_george=Method(
+                "0.0235 * H^0.42246 * W^0.51456",
+                "Gehan EA, George SL, Cancer Chemother Rep 1970;54:225",
+            ),
+            boyd=Method(
+                "0.0003207 * H^0.3 * Wg^(0.7285 - 0.0188 log10 Wg), Wg in grams",
+                "Boyd E, The growth of the surface area of the human body, 1935",
+            ),
+        ),
+    ),
+    Output(
+        "lv_mass_g",
+        "g",
+        "LV mass",
+        "formulas.mass.lv_mass_linear_g",
+        inputs=LINEAR,
+        option="mass_method",
+        decimals=0,
+        summary=True,
+        tracked="lv_mass",
+        methods=_methods(
+            ase_corrected=Method(
+                "0.8 * 1.04 * ((IVSd + LVIDd + PWd)^3 - LVIDd^3) + 0.6",
+                f"Devereux RB et al., Am J Cardiol 1986;57:450; {LANG_2015}",
+            ),
+            penn=Method(
+                "1.04 * ((IVSd + LVIDd + PWd)^3 - LVIDd^3) - 13.6 (Penn convention dimensions)",
+                "Devereux RB, Reichek N, Circulation 1977;55:613 (-13.6 g from memory; abstract -14 g)",
+                FROM_MEMORY,
+            ),
+            area_length=Method(
+                "1.05 * (5/6 * A1 * (L + t) - 5/6 * A2 * L), t = sqrt(A1/pi) - sqrt(A2/pi)",
+                SCHILLER,
+            ),
+            truncated_ellipsoid=Method(
+                "1.05 * pi * ((b + t)^2 * (2/3 (a + t) + d - d^3 / (3 (a + t)^2)) - b^2 * "
+                "(2/3 a + d - d^3 / (3 a^2)))",
+                SCHILLER,
+            ),
+        ),
+    ),
+    Output(
+        "lv_mass_method",
+        "text",
+        "LV mass method",
+        "analysis.measures.lv_mass",
+        inputs=LINEAR,
+    ),
+    Output(
+        "lvmi_bsa_g_m2",
+        "g/m2",
+        "LVMI/BSA",
+        "analysis.measures.mass_indexes",
+        inputs=(*LINEAR, "height_cm", "weight_kg"),
+        decimals=1,
+        summary=True,
+        tracked="lvmi_bsa",
+        methods=_one("LV mass / BSA", LANG_2015),
+    ),
+    Output(
+        "lvmi_h27_g_m2_7",
+        "g/m^2.7",
+        "LVMI/height^2.7",
+        "formulas.body_size.height_power",
+        inputs=(*LINEAR, "height_cm"),
+        decimals=1,
+        summary=True,
+        tracked="lvmi_h27",
+        methods=_one(
+            "LV mass / height[m]^2.7", "de Simone G et al., J Am Coll Cardiol 1992;20:1251"
+        ),
+    ),
+    Output(
+        "lvmi_h_g_m",
+        "g/m",
+        "LVMI/height",
+        "formulas.body_size.height_power",
+        inputs=(*LINEAR, "height_cm"),
+        decimals=1,
+        methods=_one("LV mass / height[m]", LANG_2005),
+    ),
+    Output(
+        "rwt",
+        "ratio",
+        "RWT",
+        "formulas.mass.relative_wall_thickness",
+        inputs=("lvidd_cm", "pwd_cm"),
+        option="rwt_method",
+        decimals=2,
+        summary=True,
+        tracked="rwt",
+        methods=_methods(
+            posterior=Method("2 * PWd / LVIDd", LANG_2015),
+            septal_posterior=Method(
+                "(IVSd + PWd) / LVIDd", "Ganau A et al., J Am Coll Cardiol 1992;19:1550"
+            ),
+        ),
+    ),
+    Output(
+        "geometry",
+        "class",
+        "Geometry",
+        "analysis.classify.geometry_4_codes",
+        inputs=(*LINEAR, "height_cm", "weight_kg", "sex"),
+        methods=_methods(
+            ganau_1992=Method(
+                "four groups by the set's mass index and RWT thresholds",
+                "Ganau A et al., J Am Coll Cardiol 1992;19:1550",
+            )
+        ),
+    ),
+    Output(
+        "edv_ml",
+        "mL",
+        "EDV",
+        "analysis.measures.volumes_and_geometry_8",
+        inputs=("lvidd_cm",),
+        decimals=0,
+        methods=_one("measured EDV where given, else Teichholz from LVIDd", TEICHHOLZ),
+    ),
+    Output(
+        "edv_source",
+        "text",
+        "EDV source",
+        "analysis.measures.volumes_and_geometry_8",
+        inputs=("lvidd_cm",),
+    ),
+    Output(
+        "edv_index_ml_m2",
+        "mL/m2",
+        "EDV/BSA",
+        "analysis.measures.volumes_and_geometry_8",
+        inputs=("lvidd_cm", "height_cm", "weight_kg"),
+        decimals=1,
+        methods=_one("EDV / BSA", LANG_2015),
+    ),
+    Output(
+        "concentricity_g_ml23",
+        "g/mL^(2/3)",
+        "Concentricity",
+        "formulas.mass.concentricity_g_ml23",
+        inputs=LINEAR,
+        decimals=2,
+        methods=_one(
+            "LV mass / EDV^(2/3)",
+            "Khouri MG et al., Circ Cardiovasc Imaging 2010;3:164; Bang CN et al., "
+            "Circ Cardiovasc Imaging 2014",
+        ),
+    ),
+    Output(
+        "geometry_8",
+        "class",
+        "Geometry (8 groups)",
+        "analysis.classify.geometry_8_codes",
+        inputs=(*LINEAR, "height_cm", "weight_kg", "sex"),
+        methods=_one(
+            "eight groups adding EDV index (dilated or not)",
+            "Gaasch WH, Zile MR, J Am Coll Cardiol 2011;58:1733 (categories; thresholds from "
+            "the reference set)",
+        ),
+    ),
+    Output(
+        "lvmi_grade",
+        "grade",
+        "LVMI grade",
+        "analysis.classify.grade_codes",
+        inputs=(*LINEAR, "height_cm", "weight_kg", "sex"),
+    ),
+    Output(
+        "rwt_grade",
+        "grade",
+        "RWT grade",
+        "analysis.classify.grade_codes",
+        inputs=("lvidd_cm", "pwd_cm", "sex"),
+    ),
+    Output(
+        "lvidd_grade",
+        "grade",
+        "LVIDd grade",
+        "analysis.classify.grade_codes",
+        inputs=("lvidd_cm", "sex"),
+    ),
+    Output(
+        "ivsd_grade",
+        "grade",
+        "IVSd grade",
+        "analysis.classify.grade_codes",
+        inputs=("ivsd_cm", "sex"),
+    ),
+    Output(
+        "pwd_grade",
+        "grade",
+        "PWd grade",
+        "analysis.classify.grade_codes",
+        inputs=("pwd_cm", "sex"),
+    ),
+    Output(
+        "fs_pct",
+        "%",
+        "FS",
+        "formulas.shortening.fractional_shortening_pct",
+        inputs=("lvidd_cm", "lvids_cm"),
+        decimals=1,
+        summary=True,
+        methods=_one("(LVIDd - LVIDs) / LVIDd * 100", "common practice, no source"),
+    ),
+    Output(
+        "edv_teichholz_ml",
+        "mL",
+        "EDV Teichholz",
+        "formulas.volumes.teichholz_volume_ml",
+        inputs=("lvidd_cm",),
+        decimals=0,
+        methods=_one("7 / (2.4 + LVIDd) * LVIDd^3", TEICHHOLZ),
+    ),
+    Output(
+        "esv_teichholz_ml",
+        "mL",
+        "ESV Teichholz",
+        "formulas.volumes.teichholz_volume_ml",
+        inputs=("lvids_cm",),
+        decimals=0,
+        methods=_one("7 / (2.4 + LVIDs) * LVIDs^3", TEICHHOLZ),
+    ),
+    Output(
+        "sv_teichholz_ml",
+        "mL",
+        "SV Teichholz",
+        "analysis.measures.chamber_function",
+        inputs=("lvidd_cm", "lvids_cm"),
+        decimals=0,
+        methods=_one("EDV - ESV (Teichholz)", TEICHHOLZ),
+    ),
+    Output(
+        "ef_teichholz_pct",
+        "%",
+        "EF Teichholz",
+        "formulas.volumes.ejection_fraction_pct",
+        inputs=("lvidd_cm", "lvids_cm"),
+        decimals=1,
+        methods=_one("(EDV - ESV) / EDV * 100 (Teichholz volumes)", TEICHHOLZ),
+    ),
+    Output(
+        "es_pressure_mmhg",
+        "mmHg",
+        "End-systolic pressure",
+        "formulas.stress.es_pressure_mmhg",
+        inputs=("sbp_mmhg",),
+        option="es_pressure",
+        decimals=0,
+        methods=_methods(
+            cuff_sbp=Method("mean cuff systolic pressure", "common practice, no source"),
+            scaled_sbp=Method(
+                "0.9 * SBP",
+                "Kelly RP et al., Circulation 1992;86:513; Chen CH et al., J Am Coll Cardiol "
+                "2001;38:2028",
+            ),
+            weighted_mean=Method("(2 * SBP + DBP) / 3", "from memory", FROM_MEMORY),
+            measured=Method(
+                "measured end-systolic pressure column (cuff SBP where missing)",
+                "the lab's measurement",
+            ),
+        ),
+    ),
+    Output(
+        "mess_kdyn_cm2",
+        "kdyn/cm2",
+        "mESS",
+        "formulas.stress.meridional_es_stress_kdyn_cm2",
+        inputs=("sbp_mmhg", "lvids_cm", "pws_cm"),
+        option="stress_constant",
+        decimals=0,
+        summary=True,
+        tracked="mess",
+        methods=_methods(
+            published=Method(
+                "0.334 * P * LVIDs / (PWs * (1 + PWs / LVIDs))",
+                "Grossman W et al., J Clin Invest 1975;56:56; Reichek N et al., Circulation "
+                "1982;65:99 (form checked; constant 0.334 from memory)",
+                FROM_MEMORY,
+            ),
+            exact=Method(
+                "(1.333224 / 4) * P * LVIDs / (PWs * (1 + PWs / LVIDs))",
+                "Grossman 1975 form with the exact mmHg -> kdyn/cm2 factor",
+            ),
+        ),
+    ),
+    Output(
+        "cess_kdyn_cm2",
+        "kdyn/cm2",
+        "cESS",
+        "formulas.stress.circumferential_es_stress_kdyn_cm2",
+        inputs=("sbp_mmhg", "lvids_cm", "pws_cm"),
+        option="stress_constant",
+        decimals=0,
+        summary=True,
+        tracked="cess",
+        methods=_methods(
+            published=Method(
+                "1.35 * P * a^2 / (b^2 - a^2) * (1 + b^2 / (a + PWs/2)^2), a = LVIDs/2, b = a + PWs",
+                "Gaasch WH, thick-walled cylinder, as used by "
+                f"{DE_SIMONE_1994} (form checked; 1.35 from memory)",
+                FROM_MEMORY,
+            ),
+            exact=Method(
+                "1.333224 * P * a^2 / (b^2 - a^2) * (1 + b^2 / (a + PWs/2)^2)",
+                "same form with the exact mmHg -> kdyn/cm2 factor (1.24 % lower)",
+            ),
+        ),
+    ),
+    Output(
+        "midwall_fs_pct",
+        "%",
+        "Midwall FS",
+        "formulas.shortening.midwall_fs_pct",
+        inputs=(*LINEAR, "lvids_cm"),
+        decimals=1,
+        summary=True,
+        methods=_one(
+            "two-shell ellipsoid: inner = ((LVIDd + Hd)^3 - LVIDd^3 + LVIDs^3)^(1/3), "
+            "Hd = (IVSd + PWd)/2; MWS = ((LVIDd + Hd) - inner) / (LVIDd + Hd) * 100",
+            "Shimizu G et al., Circulation 1991;83:1676; "
+            f"{DE_SIMONE_1994} (method checked; formula form from memory)",
+            FROM_MEMORY,
+        ),
+    ),
+    Output(
+        "midwall_fs_predicted_pct",
+        "%",
+        "Midwall FS predicted",
+        "formulas.shortening.predicted_from_line",
+        inputs=(*LINEAR, "lvids_cm", "sbp_mmhg", "pws_cm"),
+        decimals=1,
+        methods=_one(
+            "intercept + slope * cESS (reference line of the set)",
+            "de Simone G et al. 1994/1996 (coefficients NOT found: the bundled line is "
+            "approximate, from memory)",
+            FROM_MEMORY,
+        ),
+    ),
+    Output(
+        "midwall_fs_stress_corrected_pct",
+        "%",
+        "Stress-corrected midwall FS",
+        "formulas.shortening.stress_corrected_pct",
+        inputs=(*LINEAR, "lvids_cm", "sbp_mmhg", "pws_cm"),
+        decimals=1,
+        summary=True,
+        methods=_one(
+            "observed / predicted midwall FS * 100", "de Simone G et al., Circulation 1996;93:259"
+        ),
+    ),
+    Output(
+        "vcf_circ_s",
+        "circ/s",
+        "Vcf",
+        "formulas.shortening.vcf_circ_s",
+        inputs=("lvidd_cm", "lvids_cm", "ejection_time_ms"),
+        decimals=2,
+        methods=_one("FS (fraction) / ejection time [s]", COLAN, FROM_MEMORY),
+    ),
+    Output(
+        "vcfc_circ_s",
+        "circ/s",
+        "Vcf, rate-corrected",
+        "formulas.shortening.vcfc_circ_s",
+        inputs=("lvidd_cm", "lvids_cm", "ejection_time_ms", "hr_bpm"),
+        decimals=2,
+        methods=_one("FS / (ET / sqrt(RR)), RR = 60 / HR [s]", COLAN, FROM_MEMORY),
+    ),
+    Output(
+        "stroke_work_g_m",
+        "g*m",
+        "Stroke work",
+        "formulas.stress.stroke_work_g_m",
+        inputs=("sbp_mmhg", "lvidd_cm", "lvids_cm"),
+        decimals=1,
+        methods=_one(
+            "SBP * SV * 0.0144 (mercury density gives 0.013595: the published 0.0144 is 5.9 % "
+            "higher; kept because the predicted-mass coefficients were fitted with it)",
+            "de Simone G et al. (from memory)",
+            FROM_MEMORY,
+        ),
+    ),
+    Output(
+        "lv_mass_predicted_g",
+        "g",
+        "LV mass predicted",
+        "formulas.mass.predicted_lv_mass_g",
+        inputs=("height_cm", "sex", "sbp_mmhg", "lvidd_cm", "lvids_cm"),
+        decimals=0,
+        methods=_one(
+            "intercept + c1 * height^2.7 + c2 * stroke work + c3 * sex (male 1, female 2)",
+            "de Simone G et al. 1996/1998 (rule checked; coefficients from memory)",
+            FROM_MEMORY,
+        ),
+    ),
+    Output(
+        "lv_mass_appropriateness_pct",
+        "%",
+        "LV mass, % of predicted",
+        "formulas.mass.appropriateness_pct",
+        inputs=(*LINEAR, "height_cm", "sex", "sbp_mmhg", "lvids_cm"),
+        decimals=0,
+        methods=_one(
+            "observed / predicted LV mass * 100 (inappropriate above the set's limit)",
+            "de Simone G et al. 1996/1998 (rule checked; coefficients from memory)",
+            FROM_MEMORY,
+        ),
+    ),
+    Output("flags", "codes", "Flags", "findings.flag_codes"),
 )
 
+BY_OUTPUT: dict[str, Output] = {o.name: o for o in OUTPUTS}
+OUTPUT_COLUMNS: tuple[str, ...] = tuple(o.name for o in OUTPUTS)
+OUTPUT_UNITS: dict[str, str] = {o.name: o.unit for o in OUTPUTS}
+SUMMARY_MEASURES: tuple[str, ...] = tuple(o.name for o in OUTPUTS if o.summary)
+# (column, stem of its follow-up names, unit ending; "" for unitless), for tracking
+TRACKED_MEASURES: tuple[tuple[str, str, str], ...] = tuple(
+    (o.name, o.tracked, o.name[len(o.tracked) + 1 :]) for o in OUTPUTS if o.tracked
+)
 
-# Display formats by unit (values are stored at full precision).
-_NUMBER_FORMATS: dict[str, str] = {
-    "g": "0",
-    "g/m2": "0.0",
-    "g/m^2.7": "0.0",
-    "g/m": "0.0",
-    "ratio": "0.00",
-    "%": "0.0",
-    "m2": "0.00",
-    "cm": "0.00",
-    "cm2": "0.0",
-    "kg": "0.0",
-    "mmHg": "0",
-    "mL": "0",
-    "mL/m2": "0.0",
-    "kdyn/cm2": "0.0",
-    "g/mL^(2/3)": "0.00",
-    "circ/s": "0.00",
-    "g*m": "0.0",
-    "years": "0.0",
-    "days": "0",
-    "ms": "0",
-    "bpm": "0",
-    "g/year": "0.0",
-    "g/m2/year": "0.0",
-    "g/m^2.7/year": "0.00",
-    "%/year": "0.0",
+# The choices each method option takes, from the formula modules' tuples (the CLI and Options
+# checks read these; nothing retypes them).
+METHOD_CHOICES: dict[str, tuple[str, ...]] = {
+    "bsa_method": body_size.BSA_METHODS,
+    "mass_method": mass.LINEAR_MASS_METHODS + mass.AREA_MASS_METHODS,
+    "rwt_method": mass.RWT_METHODS,
+    "es_pressure": (*stress.ES_PRESSURE_METHODS, "measured"),
+    "stress_constant": stress.STRESS_CONSTANTS,
 }
-
-
-def header_with_unit(name, unit: str | None = None) -> str:
-    """``"name [unit]"`` for a column whose unit is known (given, output, schema field or name ending).
-
-    >>> header_with_unit("lvmi_bsa_g_m2")
-    'lvmi_bsa_g_m2 [g/m2]'
-    >>> header_with_unit("patient_id")
-    'patient_id'
-    """
-    text = str(name)
-    if "[" in text:
-        return text
-    unit = unit or column_unit(text)
-    return f"{text} [{unit}]" if unit else text
-
-
-def column_unit(name: str) -> str:
-    """Unit of a column from its name ("" when unknown): outputs, schema fields, then name endings."""
-    if name in OUTPUT_UNITS:
-        return OUTPUT_UNITS[name]
-    if name in BY_NAME:
-        f = BY_NAME[name]
-        return f.unit or ("F/M" if f.kind == "sex" else "")
-    if name == "rwt" or name.endswith("_rwt"):
-        return "ratio"
-    for suffix, unit in _SUFFIX_UNITS:
-        if name.endswith(suffix):
-            return unit
-    return ""
-
-
-def canonical_header(text) -> str:
-    """Undo :func:`header_with_unit`: ``"lv_mass_g [g]"`` -> ``"lv_mass_g"`` (for reading outputs back)."""
-    return re.sub(r"\s*\[[^\]]*\]\s*$", "", str(text))

@@ -23,13 +23,17 @@ from typing import NamedTuple
 
 import numpy as np
 
+from wallstress.formulas.constants import MMHG_PA
 from wallstress.schema import fields as schema
 
 # --- definitions -----------------------------------------------------------------------------------
 CM_PER_INCH = 2.54  # exact, by definition
 KG_PER_POUND = 0.45359237  # exact, by definition
-PA_PER_MMHG = 133.322387415  # conventional mmHg, by definition
+PA_PER_MMHG = MMHG_PA  # conventional mmHg, by definition (formulas.constants)
 MMHG_PER_KPA = 1000.0 / PA_PER_MMHG
+
+# How a length column without a unit in its header is read: inferred from its values, or as given.
+UNIT_CHOICES: tuple[str, ...] = ("auto", "mm", "cm")
 
 QUANTITIES: tuple[str, ...] = (
     "length",

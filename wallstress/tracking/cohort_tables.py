@@ -11,18 +11,9 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-GEOMETRY_CLASSES: tuple[str, ...] = (
-    "normal",
-    "concentric_remodelling",
-    "concentric_hypertrophy",
-    "eccentric_hypertrophy",
-)
-
+from wallstress.schema.outputs import GEOMETRY_CLASSES
 
 UNDETERMINED = "undetermined"
-
-
-HYPERTROPHY = ("concentric_hypertrophy", "eccentric_hypertrophy")
 
 
 def _transitions(patients: pd.DataFrame) -> pd.DataFrame:

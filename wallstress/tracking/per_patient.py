@@ -15,7 +15,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from wallstress.tracking.cohort_tables import HYPERTROPHY
+from wallstress.schema.outputs import CONCENTRIC_REMODELLING, HYPERTROPHY, NORMAL
 from wallstress.tracking.statistics import grouped_linear_fit
 from wallstress.tracking.visits import _NS_PER_DAY, DAYS_PER_YEAR, MEASURES
 
@@ -180,10 +180,10 @@ def _patients(visits, gid, starts, ends, ids, n_groups, n_studies, lsc) -> pd.Da
             single,
             n_geo < 2,
             g_first == g_last,
-            first_h & (g_last == "normal"),
-            first_h & (g_last == "concentric_remodelling"),
-            (g_first == "concentric_remodelling") & (g_last == "normal"),
-            (g_first == "normal") & (g_last == "concentric_remodelling"),
+            first_h & (g_last == NORMAL),
+            first_h & (g_last == CONCENTRIC_REMODELLING),
+            (g_first == CONCENTRIC_REMODELLING) & (g_last == NORMAL),
+            (g_first == NORMAL) & (g_last == CONCENTRIC_REMODELLING),
             ~first_h & last_h,
             first_h & last_h,
         ],

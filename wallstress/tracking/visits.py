@@ -13,20 +13,13 @@ import pandas as pd
 
 from wallstress import findings as fnd
 from wallstress.errors import InputError
+from wallstress.schema.outputs import TRACKED_MEASURES
 from wallstress.tracking.cohort_tables import GEOMETRY_CLASSES
 
 SAME_DAY_RULES: tuple[str, ...] = ("mean", "last")
 
 
-# (canonical column, stem used in derived names, unit suffix; "" for unitless)
-MEASURES: tuple[tuple[str, str, str], ...] = (
-    ("lv_mass_g", "lv_mass", "g"),
-    ("lvmi_bsa_g_m2", "lvmi_bsa", "g_m2"),
-    ("lvmi_h27_g_m2_7", "lvmi_h27", "g_m2_7"),
-    ("rwt", "rwt", ""),
-    ("mess_kdyn_cm2", "mess", "kdyn_cm2"),
-    ("cess_kdyn_cm2", "cess", "kdyn_cm2"),
-)
+MEASURES = TRACKED_MEASURES  # (column, stem of follow-up names, unit ending)
 
 
 BODY_COLUMNS: tuple[str, ...] = ("height_cm", "weight_kg", "age_years")

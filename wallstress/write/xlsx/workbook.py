@@ -20,8 +20,8 @@ from pathlib import Path
 import pandas as pd
 
 from wallstress.errors import OutputError
-from wallstress.schema.fields import OUTPUT_COLUMNS
-from wallstress.schema.outputs import _NUMBER_FORMATS, column_unit, header_with_unit
+from wallstress.schema.display import _NUMBER_FORMATS, column_unit, header_with_unit
+from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.write import safety
 from wallstress.write.methods_sheet import methods_rows
 from wallstress.write.parts import WriteReport, _Part

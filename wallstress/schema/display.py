@@ -1,0 +1,105 @@
+"""Units of output columns: ``"name [unit]"`` headers and the xlsx display formats by unit.
+
+The unit of a column comes from our output list, then the schema's fields, then the ending of its
+name (``_g_m2``, ``_kdyn_cm2``...), so that tables of other modules (tracking) get units too. Values are
+always stored at full precision; the formats only say how a spreadsheet shows them.
+"""
+
+from __future__ import annotations
+
+import re
+
+from wallstress.schema.fields import BY_NAME
+from wallstress.schema.outputs import OUTPUT_UNITS
+
+# Name endings -> unit, longest first (for columns of other tables, e.g. tracking).
+_SUFFIX_UNITS: tuple[tuple[str, str], ...] = (
+    ("_g_m2_7_per_year", "g/m^2.7/year"),
+    ("_g_m2_per_year", "g/m2/year"),
+    ("_g_per_year", "g/year"),
+    ("_pct_per_year", "%/year"),
+    ("_g_m2_7", "g/m^2.7"),
+    ("_kdyn_cm2", "kdyn/cm2"),
+    ("_g_ml23", "g/mL^(2/3)"),
+    ("_ml_m2", "mL/m2"),
+    ("_circ_s", "circ/s"),
+    ("_g_m2", "g/m2"),
+    ("_mmhg", "mmHg"),
+    ("_years", "years"),
+    ("_days", "days"),
+    ("_g_m", "g/m"),
+    ("_cm2", "cm2"),
+    ("_bpm", "bpm"),
+    ("_pct", "%"),
+    ("_m2", "m2"),
+    ("_cm", "cm"),
+    ("_kg", "kg"),
+    ("_ml", "mL"),
+    ("_ms", "ms"),
+    ("_g", "g"),
+)
+
+
+# Display formats by unit (values are stored at full precision).
+_NUMBER_FORMATS: dict[str, str] = {
+    "g": "0",
+    "g/m2": "0.0",
+    "g/m^2.7": "0.0",
+    "g/m": "0.0",
+    "ratio": "0.00",
+    "%": "0.0",
+    "m2": "0.00",
+    "cm": "0.00",
+    "cm2": "0.0",
+    "kg": "0.0",
+    "mmHg": "0",
+    "mL": "0",
+    "mL/m2": "0.0",
+    "kdyn/cm2": "0.0",
+    "g/mL^(2/3)": "0.00",
+    "circ/s": "0.00",
+    "g*m": "0.0",
+    "years": "0.0",
+    "days": "0",
+    "ms": "0",
+    "bpm": "0",
+    "g/year": "0.0",
+    "g/m2/year": "0.0",
+    "g/m^2.7/year": "0.00",
+    "%/year": "0.0",
+}
+
+
+def header_with_unit(name, unit: str | None = None) -> str:
+    """``"name [unit]"`` for a column whose unit is known (given, output, schema field or name ending).
+
+    >>> header_with_unit("lvmi_bsa_g_m2")
+    'lvmi_bsa_g_m2 [g/m2]'
+    >>> header_with_unit("patient_id")
+    'patient_id'
+    """
+    text = str(name)
+    if "[" in text:
+        return text
+    unit = unit or column_unit(text)
+    return f"{text} [{unit}]" if unit else text
+
+
+def column_unit(name: str) -> str:
+    """Unit of a column from its name ("" when unknown): outputs, schema fields, then name endings."""
+    if name in OUTPUT_UNITS:
+        return OUTPUT_UNITS[name]
+    if name in BY_NAME:
+        f = BY_NAME[name]
+        return f.unit or ("F/M" if f.kind == "sex" else "")
+    if name == "rwt" or name.endswith("_rwt"):
+        return "ratio"
+    for suffix, unit in _SUFFIX_UNITS:
+        if name.endswith(suffix):
+            return unit
+    return ""
+
+
+def canonical_header(text) -> str:
+    """Undo :func:`header_with_unit`: ``"lv_mass_g [g]"`` -> ``"lv_mass_g"`` (for reading outputs back)."""
+    return re.sub(r"\s*\[[^\]]*\]\s*$", "", str(text))
