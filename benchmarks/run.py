@@ -517,7 +517,7 @@ def bench_rss(n, tmp: Path) -> dict:
     tables_mib = (
         table.memory_usage(deep=True).sum() + ours.memory_usage(deep=True).sum()
     ) / 1024**2
-    imports = child_peak_rss_mib("import wallstress.jobs, wallstress.writers, pandas, numpy")
+    imports = child_peak_rss_mib("import wallstress.jobs, wallstress.write.results, pandas, numpy")
     code = textwrap.dedent(
         f"""
         from wallstress.jobs import analyse_file
@@ -547,7 +547,7 @@ def bench_chunked(n, chunk_rows, tmp: Path) -> dict:
             part.to_csv(src, index=False, header=start == 0, mode="a")
     code = textwrap.dedent(
         f"""
-        from wallstress.scale import analyse_chunked
+        from wallstress.chunked import analyse_chunked
         analyse_chunked({str(src)!r}, {str(tmp / "registry.out.csv")!r}, chunk_rows={chunk_rows})
         """
     )

@@ -1,4 +1,4 @@
-"""Chunked file-to-file analysis (wallstress.scale.analyse_chunked).
+"""Chunked file-to-file analysis (wallstress.chunked.analyse_chunked).
 
 The reference for every equality check is the in-memory path on the same file
 (``wallstress.jobs.analyse_file`` / ``wallstress.analyse``), whose values are themselves tested against

@@ -1,4 +1,4 @@
-"""wallstress.scale.dask_analyse: the same results as the in-memory analyse, on a local cluster.
+"""wallstress.chunked.dask_analyse: the same results as the in-memory analyse, on a local cluster.
 
 Reference: wallstress.analyse on the whole table in memory (its values are tested against the
 published formulas in test_pipeline.py). Invented data only (no real people).

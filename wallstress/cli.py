@@ -26,8 +26,8 @@ from wallstress.jobs import (
     track_file,
 )
 from wallstress.options import Options
-from wallstress.schema.outputs import METHOD_CHOICES
 from wallstress.schema.units import UNIT_CHOICES
+from wallstress.schema.vocabulary import CLINICAL_CAUTION, METHOD_CHOICES
 from wallstress.tracking.visits import SAME_DAY_RULES
 from wallstress.write.template import write_template
 
@@ -38,8 +38,7 @@ app = typer.Typer(
     no_args_is_help=True,
     help=(
         "LV mass, geometry, end-systolic wall stress and chamber function for echocardiographic study "
-        "lists. Supports, never replaces, a qualified clinician's judgement and the local lab's "
-        "protocols and reference values."
+        f"lists. {CLINICAL_CAUTION}"
     ),
 )
 

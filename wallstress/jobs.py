@@ -10,10 +10,17 @@ import pandas as pd
 
 from wallstress.analysis.pipeline import analyse_with_findings
 from wallstress.analysis.result import Analysis
+from wallstress.bundled import data_dir
+from wallstress.calibration.fit import calibrate
+from wallstress.calibration.set_writer import write_set
 from wallstress.errors import InputError, OutputError
 from wallstress.options import Options
 from wallstress.progress import Progress
 from wallstress.read.studies import read_studies
+from wallstress.report.page import write_report
+from wallstress.schema.vocabulary import CLINICAL_CAUTION
+from wallstress.tracking.track import track, tracking_sheets
+from wallstress.write.results import write_results, write_sheets
 from wallstress.write.xlsx.workbook import check_fits_xlsx
 
 
@@ -85,7 +92,6 @@ def analyse_file(
         raise OutputError(
             f"{out_path}: this would overwrite your input; choose another -o or pass --in-place"
         )
-    from wallstress.write.results import write_results
 
     with Progress(4, enabled=None if not quiet else False) as bar:
         study = read_studies(path, sheet=options.sheet, columns=options.columns)
@@ -133,8 +139,6 @@ def track_file(
     same_day: str = "mean",
 ) -> JobResult:
     """Follow-up of a clinic cohort: patients, visits, transitions and methods, written to ``out``."""
-    from wallstress.tracking.track import track, tracking_sheets
-    from wallstress.write.results import write_sheets
 
     options = options or Options()
     path, out = Path(path), Path(out)
@@ -156,8 +160,6 @@ def report_file(
     path: str | Path, out: str | Path, options: Options | None = None, *, figures_dir=None
 ) -> Path:
     """One self-contained HTML report; per-patient pages when patients have several studies."""
-    from wallstress.report.page import write_report
-    from wallstress.tracking.track import track
 
     options = options or Options()
     _, analysis = _read_and_analyse(path, options)
@@ -177,7 +179,6 @@ def calibrate_file(
     allow_small: bool = False,
 ) -> JobResult:
     """A lab's own reference set from its healthy subjects."""
-    from wallstress.calibration.fit import calibrate, write_set
 
     options = options or Options()
     _, analysis = _read_and_analyse(path, options)
@@ -195,7 +196,6 @@ def calibrate_file(
 
 def sample_dir() -> Path:
     """The bundled, invented sample studies (installed with the package)."""
-    from wallstress.bundled import data_dir
 
     folder = data_dir("sample_studies")
     if not (folder / "fernhill_echo_lab.xlsx").is_file():
@@ -235,8 +235,6 @@ def run_demo(folder: str | Path = "wallstress-demo") -> JobResult:
     )
     notes.append(f"report: {lab_rep.name}")
     try:
-        from wallstress.calibration.fit import calibrate, write_set
-
         _, normals = _read_and_analyse(samples / "fernhill_normals.csv", Options())
         cal = calibrate(
             normals,
@@ -252,8 +250,5 @@ def run_demo(folder: str | Path = "wallstress-demo") -> JobResult:
         written.append(p)
     except InputError as exc:
         notes.append(f"calibrate: {exc}")
-    notes.append(
-        "These are invented data. wallstress supports, never replaces, a qualified clinician's "
-        "judgement and the local lab's protocols and reference values."
-    )
+    notes.append(f"These are invented data. {CLINICAL_CAUTION}")
     return JobResult(lab.analysis, written, notes)

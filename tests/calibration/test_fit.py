@@ -1,4 +1,4 @@
-"""Tests of wallstress.calibrate: a lab's own limits and stress-shortening line from healthy subjects.
+"""Tests of wallstress.calibration.fit: a lab's own limits and stress-shortening line from healthy subjects.
 
 All subjects here are invented (random draws with fixed seeds); no real people.
 """
@@ -13,7 +13,7 @@ from scipy.stats import mstats
 
 from wallstress.analysis.pipeline import analyse_with_findings
 from wallstress.analysis.references import SET_COLUMNS, load_set
-from wallstress.calibration.fit import Calibration, calibrate, write_set
+from wallstress.calibration.fit import Calibration, calibrate
 from wallstress.calibration.limit_stats import (
     centile_ci_ranks,
     centile_summary,
@@ -21,6 +21,7 @@ from wallstress.calibration.limit_stats import (
     upper_centile,
 )
 from wallstress.calibration.normals import CLSI_MIN_PER_SEX
+from wallstress.calibration.set_writer import write_set
 from wallstress.errors import InputError, OutputError
 from wallstress.options import Options
 

@@ -7,8 +7,6 @@ output columns, so the tests do not depend on the analysis pipeline.
 from __future__ import annotations
 
 import math
-import sys
-import types
 
 import numpy as np
 import pandas as pd
@@ -18,6 +16,7 @@ from scipy import stats
 from wallstress.analysis.result import Analysis
 from wallstress.errors import InputError
 from wallstress.findings import FINDING_COLUMNS
+from wallstress.tracking import visits
 from wallstress.tracking.cohort_tables import GEOMETRY_CLASSES
 from wallstress.tracking.statistics import (
     grouped_linear_fit,
@@ -548,11 +547,7 @@ def test_raw_studies_are_analysed_first(monkeypatch):
             table=out, canonical=df, outputs=out.drop(columns=df.columns), findings=pd.DataFrame()
         )
 
-    monkeypatch.setitem(
-        sys.modules,
-        "wallstress.analysis.pipeline",
-        types.SimpleNamespace(analyse_with_findings=fake),
-    )
+    monkeypatch.setattr(visits, "analyse_with_findings", fake)
     raw = pd.DataFrame(
         {"patient_id": ["A", "A"], "study_date": pd.to_datetime(["2020-01-01", "2021-01-01"])}
     )

@@ -32,6 +32,7 @@ from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.write import safety
 from wallstress.write.methods_sheet import from_memory_items
 from wallstress.write.results import write_results, write_sheets
+from wallstress.write.xlsx import sheet_xml
 from wallstress.write.xlsx import splice as xlsx_splice
 
 FORMULA_TEXT = ['=HYPERLINK("http://x")', "+1", "@SUM(A1)", "http://example.org", "#N/A"]
@@ -359,7 +360,7 @@ def test_xlsx_refused_suffixes(tmp_path):
 
 
 def test_xlsx_too_many_rows_refused(tmp_path, monkeypatch):
-    monkeypatch.setattr(xlsx_splice, "EXCEL_MAX_ROWS", 4)
+    monkeypatch.setattr(sheet_xml, "EXCEL_MAX_ROWS", 4)
     with pytest.raises(OutputError, match=r"write to a \.csv or \.parquet output instead"):
         write_results(make_analysis(), tmp_path / "r.xlsx")
     assert list(tmp_path.iterdir()) == []

@@ -28,7 +28,8 @@ import pandas as pd
 
 from wallstress.analysis.references import ReferenceSet
 from wallstress.schema.fields import SEXES
-from wallstress.schema.outputs import (
+from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import (
     CONCENTRIC_HYPERTROPHY,
     CONCENTRIC_REMODELLING,
     ECCENTRIC_HYPERTROPHY,
@@ -148,7 +149,7 @@ def geometry_4_codes(mass_index, rwt, sex, refset: ReferenceSet, *, masks=None) 
     """Four-group geometry as codes into ``GEOMETRY_4_NAMES`` (0 when undecidable)."""
     masks = _masks(sex, masks)
     lvh = _abnormal_codes(np.asarray(mass_index, dtype=float), refset, refset.mass_index, masks)
-    conc = _abnormal_codes(np.asarray(rwt, dtype=float), refset, "rwt", masks)
+    conc = _abnormal_codes(np.asarray(rwt, dtype=float), refset, OUT.rwt, masks)
     # 1 normal, 2 concentric remodelling, 3 eccentric hypertrophy, 4 concentric hypertrophy
     idx = 1 + 2 * lvh + conc
     return idx * _as_int8((lvh >= 0) & (conc >= 0))
@@ -167,8 +168,8 @@ def geometry_8_codes(
     """Eight-group geometry as codes into ``GEOMETRY_8_NAMES`` (0 when undecidable)."""
     masks = _masks(sex, masks)
     lvh = _abnormal_codes(np.asarray(mass_index, dtype=float), refset, refset.mass_index, masks)
-    conc = _abnormal_codes(np.asarray(rwt, dtype=float), refset, "rwt", masks)
-    dil = _abnormal_codes(np.asarray(edv_index, dtype=float), refset, "edv_index_ml_m2", masks)
+    conc = _abnormal_codes(np.asarray(rwt, dtype=float), refset, OUT.rwt, masks)
+    dil = _abnormal_codes(np.asarray(edv_index, dtype=float), refset, OUT.edv_index_ml_m2, masks)
     idx = 1 + 4 * lvh + 2 * conc + dil
     return idx * _as_int8((lvh >= 0) & (conc >= 0) & (dil >= 0))
 

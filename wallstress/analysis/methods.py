@@ -11,12 +11,11 @@ from datetime import datetime, timezone
 import numpy as np
 
 from wallstress.schema.outputs import OUTPUTS
+from wallstress.schema.vocabulary import CLINICAL_CAUTION, FROM_MEMORY_CAUTION
 
 CAUTIONS = (
-    "wallstress supports, and never replaces, the judgement of a qualified clinician and the local "
-    "laboratory's protocols and reference values.",
-    "Values marked 'from_memory' were recalled, not checked against the published text: treat "
-    "results that depend on them (listed under 'unverified') as provisional.",
+    CLINICAL_CAUTION,
+    FROM_MEMORY_CAUTION,
     "Linear (M-mode/2D) LV mass assumes a symmetric ellipsoidal ventricle; it misleads with asymmetric "
     "hypertrophy, aneurysm or distorted shape (rows flagged where detectable).",
     "Adult reference values do not apply to children.",

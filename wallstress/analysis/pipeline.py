@@ -22,8 +22,9 @@ from wallstress.analysis.result import Analysis
 from wallstress.options import Options
 from wallstress.prepare.mapping import map_columns
 from wallstress.prepare.validate import validate_parts
-from wallstress.schema.outputs import METHOD_CHOICES, OUTPUT_COLUMNS
+from wallstress.schema.outputs import OUT, OUTPUT_COLUMNS
 from wallstress.schema.units import UNIT_CHOICES
+from wallstress.schema.vocabulary import METHOD_CHOICES
 
 # Large tables are computed in row partitions, one thread each: every measure is a function of its
 # own row, numpy releases the GIL inside its array loops, so the partitions run on separate cores
@@ -71,7 +72,7 @@ def analyse(df: pd.DataFrame, options: Options | None = None) -> pd.DataFrame:
 def analyse_with_findings(
     df: pd.DataFrame, options: Options | None = None, *, prior_findings: pd.DataFrame | None = None
 ) -> Analysis:
-    """Like :func:`analyse`, returning the whole :class:`~wallstress.result.Analysis`.
+    """Like :func:`analyse`, returning the whole :class:`~wallstress.analysis.result.Analysis`.
 
     ``prior_findings`` (e.g. from the reader: error values in cells) join the row flags.
     """
@@ -86,7 +87,7 @@ def analyse_with_findings(
     # every step's findings joined once, in step order (within a row: reader, mapping, validation,
     # measures), sorted by row
     findings = fnd.concat([prior_findings, mapped.findings, *vparts, *cparts], categorical=True)
-    out["flags"] = fnd.categorical_text(*fnd.flag_codes(findings, len(df)))
+    out[OUT.flags] = fnd.categorical_text(*fnd.flag_codes(findings, len(df)))
     # copy=False: each output its own block (no stacking copy of ~30 float columns); an array that
     # is read-only (a view of an input) or already in another column is copied first
     outputs = pd.DataFrame(_own_arrays(out, OUTPUT_COLUMNS), index=canonical.index, copy=False)

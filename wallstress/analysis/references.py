@@ -28,6 +28,7 @@ from wallstress.bundled import data_dir
 from wallstress.errors import ReferenceSetError
 from wallstress.options import Options
 from wallstress.schema.fields import SEXES
+from wallstress.schema.outputs import OUT
 
 SET_COLUMNS = (
     "kind",
@@ -47,7 +48,7 @@ DOWNWARD_GRADES = ("below_normal",)
 COMPARISONS = (">", ">=", "<", "<=")
 VERIFIED = ("published", "from_memory", "computed", "lab")
 DEFAULT_SET = Options.reference  # the set used when none is named
-MASS_INDEXES = ("lvmi_bsa_g_m2", "lvmi_h27_g_m2_7")
+MASS_INDEXES = (OUT.lvmi_bsa_g_m2, OUT.lvmi_h27_g_m2_7)
 
 
 @dataclass(frozen=True)

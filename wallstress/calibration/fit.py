@@ -1,7 +1,7 @@
 """A lab's own reference limits and stress-shortening line, fitted from its healthy subjects.
 
 ``calibrate`` takes the analysed study list of a lab's healthy (reference) subjects and returns a
-complete reference set in the set-file format of :mod:`wallstress.references`:
+complete reference set in the set-file format of :mod:`wallstress.analysis.references`:
 
 - **Upper reference limits** (kind ``cutoff``, verified ``lab``): the 97.5th centile, by sex, of
   LVMI by BSA and by height^2.7, EDV index and concentricity, and of RWT (pooled over both sexes by
@@ -26,12 +26,10 @@ How many subjects: CLSI EP28-A3c (2010) asks for at least 120 reference subjects
 nonparametric reference interval (from memory). Fewer are refused unless ``allow_small=True`` and at
 least :data:`SMALL_FLOOR` are present; such rows say "small sample" in their note.
 
-This module builds the set; the statistics live in :mod:`wallstress.limit_stats` (centiles, their
-intervals, the line) and the choice of subjects in :mod:`wallstress.healthy_subjects`. Their names
-stay importable from here.
-
-The limits of a lab's own healthy subjects support, never replace, a qualified clinician's judgement
-and the lab's protocols; they describe the lab's own reference population and methods only.
+The statistics live in :mod:`~wallstress.calibration.limit_stats` (centiles, their intervals, the
+line), the choice of subjects in :mod:`~wallstress.calibration.normals`, the rows in
+:mod:`~wallstress.calibration.fitted_rows`; :func:`~wallstress.calibration.set_writer.write_set` writes
+the set.
 
 References
 ----------
@@ -48,27 +46,27 @@ geometry. Circ Cardiovasc Imaging 2010;3:164-171 (limits as 97.5th centiles of a
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from pathlib import Path
 
-import numpy as np
 import pandas as pd
 
 from wallstress import __version__
 from wallstress.analysis.references import (
     DEFAULT_SET,
     SET_COLUMNS,
-    UPWARD_GRADES,
-    ReferenceSet,
     load_set,
+)
+from wallstress.calibration.fitted_rows import (
+    LINE_X,
+    LINE_Y,
+    base_cutoffs,
+    copied_rows,
+    limit_rows,
+    line_rows,
+    set_row,
 )
 from wallstress.calibration.limit_stats import (
     CENTILE_METHOD_TEXT,
-    LOWER_LIMIT_CENTILE,
-    centile_summary,
-    fit_line,
 )
-
-# moved to modules of their own; re-exported so that ``from wallstress.calibrate import ...`` keeps working
 from wallstress.calibration.normals import (
     CLSI_MIN_PER_SEX,
     SEXES,
@@ -78,28 +76,23 @@ from wallstress.calibration.normals import (
     _required,
     _too_few_message,
 )
-from wallstress.errors import InputError, OutputError
+from wallstress.errors import InputError
+from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import CLINICAL_CAUTION
 
 FITTED_MEASURES: tuple[tuple[str, str], ...] = (
-    ("lvmi_bsa_g_m2", "g/m2"),
-    ("lvmi_h27_g_m2_7", "g/m^2.7"),
-    ("rwt", ""),
-    ("edv_index_ml_m2", "mL/m2"),
-    ("concentricity_g_ml23", "g/mL^(2/3)"),
+    (OUT.lvmi_bsa_g_m2, "g/m2"),
+    (OUT.lvmi_h27_g_m2_7, "g/m^2.7"),
+    (OUT.rwt, ""),
+    (OUT.edv_index_ml_m2, "mL/m2"),
+    (OUT.concentricity_g_ml23, "g/mL^(2/3)"),
 )
 """Measures given a lab upper limit (97.5th centile), with their units."""
 
 
-LINE_MODEL = "midwall_stress_line"
-
-
-LINE_X, LINE_Y = "cess_kdyn_cm2", "midwall_fs_pct"
-
-
 CAUTION = (
     "A lab's own limits describe its own healthy subjects, equipment and measuring habits only. "
-    "wallstress supports, never replaces, a qualified clinician's judgement and the lab's protocols "
-    "and reference values."
+    f"{CLINICAL_CAUTION}"
 )
 
 
@@ -132,43 +125,6 @@ class Calibration:
     lab_name: str = ""
 
 
-def _row(
-    kind,
-    measure,
-    sex="",
-    grade="",
-    comparison="",
-    value=np.nan,
-    unit="",
-    source="",
-    verified="",
-    note="",
-) -> dict:
-    return {
-        "kind": kind,
-        "measure": measure,
-        "sex": sex,
-        "grade": grade,
-        "comparison": comparison,
-        "value": value,
-        "unit": unit,
-        "source": source,
-        "verified": verified,
-        "note": note,
-    }
-
-
-def _small_note(n: int) -> str:
-    if n < CLSI_MIN_PER_SEX:
-        return f"small sample: n={n}, interval wide (CLSI EP28-A3c asks for {CLSI_MIN_PER_SEX})"
-    return ""
-
-
-def _base_cutoffs(base: ReferenceSet) -> pd.DataFrame:
-    rows = base.rows
-    return rows[rows["kind"] == "cutoff"].copy()
-
-
 def calibrate(
     frame_or_analysis,
     *,
@@ -184,7 +140,7 @@ def calibrate(
     Parameters
     ----------
     frame_or_analysis : Analysis or DataFrame
-        The healthy subjects analysed by :func:`wallstress.pipeline.analyse_with_findings`, or its
+        The healthy subjects analysed by :func:`wallstress.analysis.pipeline.analyse_with_findings`, or its
         ``.frame()`` (columns ``sex``, ``flags`` and the measures: ``lvmi_bsa_g_m2`` [g/m2],
         ``lvmi_h27_g_m2_7`` [g/m^2.7], ``rwt`` [-], ``edv_index_ml_m2`` [mL/m2],
         ``concentricity_g_ml23`` [g/mL^(2/3)], ``cess_kdyn_cm2`` [kdyn/cm2], ``midwall_fs_pct`` [%]).
@@ -248,225 +204,29 @@ def calibrate(
     )
     stamp = f"wallstress {__version__}, data sha256 {digest}{opt_text}"
 
-    base_cut = _base_cutoffs(base)
-    lab_rows: list[dict] = []
-    summary: list[dict] = []
-    fitted: set[tuple[str, str]] = set()  # (measure, sex) replaced; sex "" = both
-    kept_partitions: list[dict] = []
-
-    for measure, unit in present:
-        values = pd.to_numeric(frame[measure], errors="coerce").to_numpy(dtype=float)
-        pooled = measure == "rwt" and rwt_pooled
-        groups = [("", usable)] if pooled else [(s, usable & (sex == s)) for s in SEXES]
-        need = required * (2 if pooled else 1)
-        results = []
-        for s, mask in groups:
-            res = centile_summary(values[mask])
-            results.append((s, res))
-        short = [(s, r["n"]) for s, r in results if r["n"] < need]
-        if short:
-            notes.append(
-                f"{measure}: not fitted, too few values ("
-                + ", ".join(f"{s or 'both'}: {k}" for s, k in short)
-                + f"; {need} needed); the base set's rows are kept."
-            )
-            continue
-        for s, res in results:
-            sexes = SEXES if s == "" else (s,)
-            base_rows = base_cut[(base_cut["measure"] == measure)]
-            base_rows = base_rows[
-                base_rows["sex"].fillna("").isin(list(sexes) + ["", "both", "all"])
-            ]
-            up = base_rows[base_rows["grade"].isin(UPWARD_GRADES)].sort_values("value")
-            grade = "increased"
-            base_value = np.nan
-            if len(up):
-                lowest = up.iloc[0]
-                base_value = float(lowest["value"])
-                grade = str(lowest["grade"])
-            limit = res["centile"]
-            small = _small_note(res["n"])
-            ci = (
-                f"90 % CI {res['ci_low']:.4g}-{res['ci_high']:.4g} (order statistics, coverage "
-                f"{res['ci_coverage']:.3f})"
-                if np.isfinite(res["ci_high"])
-                else "90 % CI not available for this n"
-            )
-            parts = [p for p in (small, ci) if p]
-            if pooled:
-                parts.append("pooled over both sexes (one limit, as the published RWT limit)")
-            if measure == "edv_index_ml_m2" and "edv_source" in frame.columns:
-                src = frame.loc[usable, "edv_source"].fillna("").astype(str).value_counts()
-                parts.append(
-                    "EDV from "
-                    + ", ".join(f"{k or 'none'} {v}" for k, v in src.items())
-                    + "; use only with volumes measured the same way"
-                )
-            lab_rows.append(
-                _row(
-                    "cutoff",
-                    measure,
-                    s,
-                    grade,
-                    ">",
-                    limit,
-                    unit,
-                    f"{label}: n={res['n']} {'F+M' if pooled else s}, {CENTILE_METHOD_TEXT}; {stamp}",
-                    "lab",
-                    "; ".join(parts),
-                )
-            )
-            summary.append(
-                {
-                    "measure": measure,
-                    "sex": s or "both",
-                    "n": res["n"],
-                    "centile_97_5": limit,
-                    "ci90_low": res["ci_low"],
-                    "ci90_high": res["ci_high"],
-                    "ci_coverage": res["ci_coverage"],
-                    "mean": res["mean"],
-                    "sd": res["sd"],
-                    "base_value": base_value,
-                    "unit": unit,
-                    "note": small,
-                }
-            )
-            for sx in sexes:
-                fitted.add((measure, sx))
-            # severity partitions of the base above the lab's limit are kept (the rows of the
-            # replaced grade, one per sex when pooled, are not partitions)
-            for r in up[up["grade"] != grade].itertuples():
-                if float(r.value) > limit:
-                    kept_partitions.append((measure, s, r.Index))
-                else:
-                    notes.append(
-                        f"{measure} {s or 'both'}: base {r.grade} threshold {r.value:g} dropped, it is "
-                        f"not above the lab's limit {limit:.4g}."
-                    )
-
-    # the stress-shortening line
+    lab_rows, summary, fitted, kept = limit_rows(
+        frame, usable, sex, present, required, base_cutoffs(base), label, stamp, rwt_pooled, notes
+    )
     line: dict = {}
     if have_line:
-        x = pd.to_numeric(frame.loc[usable, LINE_X], errors="coerce").to_numpy(dtype=float)
-        y = pd.to_numeric(frame.loc[usable, LINE_Y], errors="coerce").to_numpy(dtype=float)
-        n_pairs = int((np.isfinite(x) & np.isfinite(y)).sum())
-        if n_pairs < 2 * required:
-            notes.append(
-                f"{LINE_MODEL}: not fitted, {n_pairs} subjects with cESS and midwall shortening "
-                f"({2 * required} needed); the base set's or bundled line is kept."
-            )
-        else:
-            line = fit_line(x, y)
-            src = (
-                f"{label}: n={line['n']} (F+M pooled), ordinary least squares of midwall FS on cESS; "
-                f"{stamp}"
-            )
-            rng = (
-                f"fitted over cESS {line['x_min_kdyn_cm2']:.0f}-{line['x_max_kdyn_cm2']:.0f} kdyn/cm2 "
-                f"(outside it the line is extrapolated); r2={line['r2']:.3f}; both sexes pooled"
-            )
-            small = _small_note(line["n"])
-            lab_rows += [
-                _row(
-                    "coefficient",
-                    LINE_MODEL,
-                    "",
-                    "intercept_pct",
-                    "",
-                    line["intercept_pct"],
-                    "%",
-                    src,
-                    "lab",
-                    "; ".join(p for p in (rng, small) if p),
-                ),
-                _row(
-                    "coefficient",
-                    LINE_MODEL,
-                    "",
-                    "slope_pct_per_kdyn_cm2",
-                    "",
-                    line["slope_pct_per_kdyn_cm2"],
-                    "%/(kdyn/cm2)",
-                    src,
-                    "lab",
-                    "",
-                ),
-                _row(
-                    "coefficient",
-                    LINE_MODEL,
-                    "",
-                    "residual_sd_pct",
-                    "",
-                    line["residual_sd_pct"],
-                    "%",
-                    src,
-                    "lab",
-                    f"sqrt(SSE/(n-2)); 95 % prediction interval at the mean cESS "
-                    f"+/-{line['pi95_half_width_at_mean_pct']:.3g} %",
-                ),
-                _row(
-                    "coefficient",
-                    LINE_MODEL,
-                    "",
-                    "lower_limit_stress_corrected_pct",
-                    "",
-                    line["lower_limit_stress_corrected_pct"],
-                    "%",
-                    src,
-                    "lab",
-                    f"{LOWER_LIMIT_CENTILE:g}th centile (numpy 'linear') of observed/predicted*100 in "
-                    f"the lab's healthy subjects; parametric 100*(1-1.645*SD/mean) would give "
-                    f"{line['lower_limit_parametric_pct']:.3g}",
-                ),
-            ]
-            if not line["slope_pct_per_kdyn_cm2"] < 0:
-                notes.append(
-                    f"{LINE_MODEL}: the slope is not negative ({line['slope_pct_per_kdyn_cm2']:.4g} "
-                    f"%/(kdyn/cm2), r2={line['r2']:.3f}): these subjects do not show the expected fall "
-                    "of midwall shortening with stress; check the measurements before using the line."
-                )
-            notes.append(
-                f"{LINE_MODEL}: fitted over both sexes pooled (n={line['n']}); lower limit of "
-                f"stress-corrected midwall shortening = {LOWER_LIMIT_CENTILE:g}th centile of "
-                "observed/predicted in these subjects."
-            )
-
-    # rows copied from the base set
-    keep_idx = {idx for _, _, idx in kept_partitions}
-    copied = []
-    for r in base.rows.itertuples():
-        if r.kind == "setting":
-            continue
-        if r.kind == "coefficient" and r.measure == LINE_MODEL and line:
-            continue
-        if r.kind == "cutoff":
-            rsex = "" if pd.isna(r.sex) or r.sex in ("both", "all") else str(r.sex)
-            replaced = any((r.measure, sx) in fitted for sx in ((rsex,) if rsex else SEXES))
-            if replaced and r.grade in UPWARD_GRADES and r.Index not in keep_idx:
-                continue
-        rec = {c: getattr(r, c) for c in SET_COLUMNS}
-        if r.Index in keep_idx:
-            extra = f"severity partition from {base.name}, kept above the lab's own limit"
-            rec["note"] = (
-                f"{rec['note']}; {extra}" if isinstance(rec["note"], str) and rec["note"] else extra
-            )
-        copied.append(rec)
+        line, line_set_rows = line_rows(frame, usable, required, label, stamp, notes)
+        lab_rows += line_set_rows
+    copied = copied_rows(base, line, fitted, kept)
 
     n_total = sum(counts.values())
     settings = [
-        _row(
+        set_row(
             "setting",
             "title",
             note=f"{lab_name} own limits (n={n_total}: {counts['F']} F, {counts['M']} M)",
         ),
-        _row("setting", "geometry_mass_index", note=base.mass_index),
-        _row(
+        set_row("setting", "geometry_mass_index", note=base.mass_index),
+        set_row(
             "setting",
             "base_set",
             note=f"{base.name} ({base.title}); rows not fitted copied with their sources",
         ),
-        _row("setting", "caution", note=CAUTION),
+        set_row("setting", "caution", note=CAUTION),
     ]
     rows = pd.DataFrame(settings + lab_rows + copied, columns=list(SET_COLUMNS))
     rows["value"] = pd.to_numeric(rows["value"], errors="coerce")
@@ -511,39 +271,3 @@ def calibrate(
     return Calibration(
         rows=rows, summary=summary_df, line=line, notes=notes, base_set=base.name, lab_name=lab_name
     )
-
-
-def write_set(calibration: Calibration, out_path) -> Path:
-    """Write a calibration as a reference-set CSV, atomically (temporary file, then ``os.replace``).
-
-    Parameters
-    ----------
-    calibration : Calibration
-        From :func:`calibrate`.
-    out_path : str or Path
-        Target ``.csv``; its folder must exist. Use it with ``Options(reference=str(path))`` or
-        ``--reference``.
-
-    Returns
-    -------
-    Path
-        The written file.
-
-    Raises
-    ------
-    OutputError
-        The path does not end in ``.csv``, is a folder, or its folder does not exist.
-    """
-    from wallstress.write.safety import atomic_path, escape_formula_text
-
-    path = Path(out_path)
-    if path.suffix.lower() != ".csv":
-        raise OutputError(
-            f"out_path={str(path)!r} must end in .csv (a reference set is a CSV file)"
-        )
-    if path.is_dir():
-        raise OutputError(f"out_path={str(path)!r} is a folder; give a file name ending in .csv")
-    table = escape_formula_text(calibration.rows[list(SET_COLUMNS)])
-    with atomic_path(path) as tmp:
-        table.to_csv(tmp, index=False, encoding="utf-8", float_format="%.10g", lineterminator="\n")
-    return path

@@ -21,6 +21,7 @@ import pandas as pd
 from wallstress.analysis.result import Analysis
 from wallstress.errors import InputError
 from wallstress.schema.fields import SEXES
+from wallstress.schema.outputs import OUT
 
 CLSI_MIN_PER_SEX = 120
 """Reference subjects per partition for a nonparametric interval (CLSI EP28-A3c, 2010; from memory)."""
@@ -60,8 +61,8 @@ def _eligible(frame: pd.DataFrame) -> tuple[np.ndarray, list[str]]:
         )
     sex = frame["sex"].astype(object)
     sex_ok = sex.isin(SEXES).to_numpy()
-    if "flags" in frame.columns:
-        flags = frame["flags"].fillna("").astype(str)
+    if OUT.flags in frame.columns:
+        flags = frame[OUT.flags].fillna("").astype(str)
         pattern = "|".join(EXCLUDING_FLAGS)
         err = flags.str.contains(pattern, regex=True).to_numpy()
     else:

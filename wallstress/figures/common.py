@@ -20,7 +20,8 @@ import pandas as pd
 from matplotlib.figure import Figure
 
 from wallstress.schema.fields import SEXES
-from wallstress.schema.outputs import GEOMETRY_CLASSES, in_words
+from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import GEOMETRY_CLASSES, in_words
 
 # Okabe-Ito palette (Okabe & Ito 2002).
 OKABE_ITO: dict[str, str] = {
@@ -71,16 +72,16 @@ QUADRANT_TEXT: dict[str, str] = {
 }
 
 
-MASS_INDEXES: tuple[str, ...] = ("lvmi_bsa_g_m2", "lvmi_h27_g_m2_7")
+MASS_INDEXES: tuple[str, ...] = (OUT.lvmi_bsa_g_m2, OUT.lvmi_h27_g_m2_7)
 
 
 MASS_INDEX_LABELS: dict[str, str] = {
-    "lvmi_bsa_g_m2": "LV mass index, LV mass / BSA [g/m²]",
-    "lvmi_h27_g_m2_7": "LV mass index, LV mass / height^2.7 [g/m^2.7]",
+    OUT.lvmi_bsa_g_m2: "LV mass index, LV mass / BSA [g/m²]",
+    OUT.lvmi_h27_g_m2_7: "LV mass index, LV mass / height^2.7 [g/m^2.7]",
 }
 
 
-MASS_INDEX_UNITS: dict[str, str] = {"lvmi_bsa_g_m2": "g/m²", "lvmi_h27_g_m2_7": "g/m^2.7"}
+MASS_INDEX_UNITS: dict[str, str] = {OUT.lvmi_bsa_g_m2: "g/m²", OUT.lvmi_h27_g_m2_7: "g/m^2.7"}
 
 
 LINE_KEYS: tuple[str, ...] = ("intercept_pct", "slope_pct_per_kdyn_cm2", "residual_sd_pct")

@@ -33,6 +33,7 @@ from wallstress.figures.common import (
     _status,
     plain_text,
 )
+from wallstress.schema.outputs import OUT
 
 
 def geometry_plane(
@@ -75,11 +76,11 @@ def geometry_plane(
     Lang RM et al. J Am Soc Echocardiogr 2015;28:1-39 (cut-offs of the default set).
     """
     if mass_index is None:
-        mass_index = getattr(reference_set, "mass_index", None) or "lvmi_bsa_g_m2"
+        mass_index = getattr(reference_set, "mass_index", None) or OUT.lvmi_bsa_g_m2
     _check_mass_index(mass_index)
     fig, ax = _new_figure(7.6, 5.4)
     x = _column(frame, mass_index)
-    y = _column(frame, "rwt")
+    y = _column(frame, OUT.rwt)
     sex = _sex(frame)
     ok = np.isfinite(x) & np.isfinite(y)
     dense = ok.sum() > 5000
@@ -116,7 +117,7 @@ def geometry_plane(
                 label=f"mass limit, {SEX_LABELS[s]}: {c.comparison} {c.value:g} {unit}{flag}",
                 zorder=2,
             )
-    rwt_cuts = {s: _cutoff(reference_set, "rwt", s) for s in SEXES}
+    rwt_cuts = {s: _cutoff(reference_set, OUT.rwt, s) for s in SEXES}
     values = {s: c.value for s, c in rwt_cuts.items() if c is not None and np.isfinite(c.value)}
     if values:
         same = len(set(values.values())) == 1
@@ -144,7 +145,7 @@ def geometry_plane(
     xs = np.concatenate([x[ok], x_cuts]) if (ok.any() or x_cuts) else np.array([60.0, 140.0])
     ys = np.concatenate([y[ok], y_cuts]) if (ok.any() or y_cuts) else np.array([0.25, 0.6])
     if paths is not None and len(paths):
-        px, py = _column(paths, mass_index), _column(paths, "rwt")
+        px, py = _column(paths, mass_index), _column(paths, OUT.rwt)
         pm = np.isfinite(px) & np.isfinite(py)
         xs, ys = np.concatenate([xs, px[pm]]), np.concatenate([ys, py[pm]])
     lo_x, hi_x = np.nanmin(xs), np.nanmax(xs)
@@ -211,7 +212,7 @@ def _draw_paths(ax, paths: pd.DataFrame, mass_index: str, max_paths: int) -> int
     """
     if "patient_id" not in paths.columns:
         return 0
-    px, py = _column(paths, mass_index), _column(paths, "rwt")
+    px, py = _column(paths, mass_index), _column(paths, OUT.rwt)
     sex = _sex(paths)
     pid = paths["patient_id"].astype("string").fillna("").to_numpy(dtype=object)
     codes, uniques = pd.factorize(pid, sort=False)

@@ -9,13 +9,8 @@ ids) is shown literally: ``$`` is escaped so it never starts matplotlib math tex
 Colours are the Okabe-Ito palette, which stays distinguishable under the common colour-vision
 deficiencies; sexes also differ by marker shape so the plot survives greyscale printing.
 
-This module writes figures out (:func:`to_png`, :func:`to_svg`, :func:`save`); the figures
-themselves live in :mod:`wallstress.figure_geometry`, :mod:`wallstress.figure_trend`,
-:mod:`wallstress.figure_stress` and :mod:`wallstress.figure_transitions`, the shared palette, labels
-and helpers in :mod:`wallstress.figure_common`. Their names stay importable from here.
-
-wallstress supports, and never replaces, a qualified clinician's judgement and the local lab's
-protocols and reference values.
+This module writes figures out (:func:`to_png`, :func:`to_svg`, :func:`save`); each figure has a
+module of its own beside it, the shared palette, labels and helpers are in ``common``.
 
 References
 ----------
@@ -34,7 +29,6 @@ from pathlib import Path
 
 from matplotlib.figure import Figure
 
-# moved to modules of their own; re-exported so that ``from wallstress.figures import ...`` keeps working
 from wallstress.write.safety import atomic_files
 
 

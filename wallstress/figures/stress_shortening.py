@@ -28,6 +28,7 @@ from wallstress.figures.common import (
     _sex,
     _status_words,
 )
+from wallstress.schema.outputs import OUT
 
 
 def line_values(line) -> tuple[float, float, float, str]:
@@ -88,8 +89,8 @@ def stress_shortening(frame: pd.DataFrame, line) -> Figure:
     Shimizu G et al. Circulation 1991;83:1676-1684 (midwall shortening).
     """
     fig, ax = _new_figure(7.0, 4.6)
-    x = _column(frame, "cess_kdyn_cm2")
-    y = _column(frame, "midwall_fs_pct")
+    x = _column(frame, OUT.cess_kdyn_cm2)
+    y = _column(frame, OUT.midwall_fs_pct)
     sex = _sex(frame)
     ok = np.isfinite(x) & np.isfinite(y)
     dense = ok.sum() > 5000

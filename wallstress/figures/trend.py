@@ -30,6 +30,7 @@ from wallstress.figures.common import (
     _time_axis,
     plain_text,
 )
+from wallstress.schema.outputs import OUT
 
 
 def mass_divisor(visits: pd.DataFrame, mass_index: str) -> np.ndarray:
@@ -39,12 +40,12 @@ def mass_divisor(visits: pd.DataFrame, mass_index: str) -> np.ndarray:
     ``lv_mass_g / index`` (the definition of the index). NaN where neither is available.
     """
     _check_mass_index(mass_index)
-    if mass_index == "lvmi_bsa_g_m2":
-        d = _column(visits, "bsa_m2")
+    if mass_index == OUT.lvmi_bsa_g_m2:
+        d = _column(visits, OUT.bsa_m2)
     else:
         d = (_column(visits, "height_cm") / 100.0) ** 2.7
     with np.errstate(divide="ignore", invalid="ignore"):
-        fallback = _column(visits, "lv_mass_g") / _column(visits, mass_index)
+        fallback = _column(visits, OUT.lv_mass_g) / _column(visits, mass_index)
     d = np.where(np.isfinite(d) & (d > 0), d, fallback)
     return np.where(np.isfinite(d) & (d > 0), d, np.nan)
 
@@ -98,10 +99,10 @@ def lvmi_trend(
         lsc_value = None
     visits = visits_one_patient if visits_one_patient is not None else pd.DataFrame()
     if mass_index is None:
-        if "lvmi_bsa_g_m2" in visits.columns:
-            mass_index = "lvmi_bsa_g_m2"
+        if OUT.lvmi_bsa_g_m2 in visits.columns:
+            mass_index = OUT.lvmi_bsa_g_m2
         else:
-            mass_index = getattr(reference_set, "mass_index", None) or "lvmi_bsa_g_m2"
+            mass_index = getattr(reference_set, "mass_index", None) or OUT.lvmi_bsa_g_m2
     _check_mass_index(mass_index)
     if len(visits):
         visits = visits.iloc[np.argsort(_sort_key(visits), kind="stable")]
@@ -128,7 +129,7 @@ def lvmi_trend(
             )
     if ok.sum() > 1:
         ax.plot(t[ok], y[ok], color=_TEXT_COLOUR, linewidth=1.0, alpha=0.6, zorder=2.5)
-    geometry = _text_column(visits, "geometry")
+    geometry = _text_column(visits, OUT.geometry)
     for g in (*GEOMETRY_CLASSES, ""):
         m = ok & (geometry == g) if g else ok & ~np.isin(geometry, GEOMETRY_CLASSES)
         if m.any():

@@ -2,8 +2,7 @@
 
 Every function takes scalars, ndarrays or pandas Series (a Series keeps its index), returns NaN
 where an input is missing or out of its domain, and raises ValueError only for a wrong call (an
-unknown method name, listing the valid ones). These formulas support, and never replace, a
-qualified clinician's judgement and the local lab's protocols and reference values; values marked
+unknown method name, listing the valid ones). Values marked
 "from memory" in the docstrings were recalled, not read in the source.
 """
 

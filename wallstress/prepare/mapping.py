@@ -7,9 +7,9 @@ recording how each unit was known: from the canonical name (``lvidd_cm``), the h
 (``"LVIDd (mm)"``), the ``units`` option, or inferred from the values (with a note saying how to state
 it). Nothing here raises on a bad cell: it becomes NaN with a finding naming the original value.
 
-This module maps columns and converts units; header matching lives in :mod:`wallstress.header_match`,
-cell parsing in :mod:`wallstress.cell_parse` (numbers, sex, ids) and :mod:`wallstress.date_parse`
-(dates). Their names stay importable from here.
+This module maps columns and converts units; header matching lives in :mod:`wallstress.schema.headers`,
+cell parsing in :mod:`wallstress.prepare.cells` (numbers, sex, ids) and :mod:`wallstress.prepare.dates`
+(dates).
 
 References
 ----------
@@ -29,8 +29,6 @@ from wallstress import findings as fnd
 from wallstress.errors import InputError
 from wallstress.formulas._arrays import finite_or_nan
 from wallstress.options import Options
-
-# moved to modules of their own; re-exported so that ``from wallstress.mapping import ...`` keeps working
 from wallstress.prepare.cells import (
     parse_ids,
     parse_numbers,

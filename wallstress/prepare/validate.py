@@ -1,7 +1,7 @@
 """Row-level validation: rules -> findings. Never raises on a bad row; never drops one.
 
 Each rule is vectorised over the whole column. A value outside its field's ``hard`` range
-(``schema.py``) is impossible: it is set to NaN in the canonical table (so every measure that needs it
+(``schema/fields.py``) is impossible: it is set to NaN in the canonical table (so every measure that needs it
 is NaN) and gets an ``error`` finding. A value outside the ``typical`` range is kept and gets a
 ``warning``. Consistency rules compare fields of the same row.
 """
@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from wallstress import findings as fnd
-from wallstress.schema.fields import BY_NAME
+from wallstress.schema.fields import BY_NAME, SEXES
 
 # IVSd / PWd above which the cube formula (which assumes a symmetric ventricle) misleads.
 # Common practice, no source: asymmetric septal thickening is usually called at a ratio of 1.3 or more.
@@ -36,164 +36,196 @@ def validate(
     return cleaned, fnd.concat(parts, categorical=True)
 
 
-def validate_parts(
-    canonical: pd.DataFrame, labels: dict[str, str] | None = None
-) -> tuple[pd.DataFrame, list[pd.DataFrame]]:
-    """:func:`validate` with the findings as one table per rule, in rule order (not yet joined:
-    the pipeline joins every step's findings once)."""
-    labels = labels or {}
-    # numbers as float arrays; a rule that blanks values makes a new array (never writes into the
-    # input), and the cleaned table is assembled from whole columns once at the end
-    nums: dict[str, np.ndarray] = {}
-    for name in canonical.columns:
-        f = BY_NAME.get(name)
-        if f is not None and f.kind == "number":
-            nums[name] = canonical[name].to_numpy(dtype=float)
-    given = dict(nums)
-    parts: list[pd.DataFrame] = []
+class _Check:
+    """The numbers of a canonical table under validation, and the findings of the rules so far.
 
-    def label(name: str) -> str:
-        return labels.get(name, name)
+    A rule that blanks values makes a new array (never writes into the input); the cleaned table is
+    assembled from whole columns once at the end.
+    """
 
-    for name, v in nums.items():
-        f = BY_NAME[name]
-        with np.errstate(invalid="ignore"):
-            if f.hard is not None:
-                bad = (v < f.hard[0]) | (v > f.hard[1])
-                if bad.any():
-                    rows = np.flatnonzero(bad)
-                    parts.append(
-                        fnd.make(
-                            rows,
-                            code=f"{name}_impossible",
-                            severity="error",
-                            column=label(name),
-                            field=name,
-                            values=v[rows],
-                            message=(
-                                f"{f.meaning} outside {f.hard[0]:g}-{f.hard[1]:g} {f.unit} is impossible; "
-                                f"not used. Check the value and its unit."
-                            ),
-                        )
-                    )
-                    v = nums[name] = np.where(bad, np.nan, v)
-            if f.typical is not None:
-                odd = (v < f.typical[0]) | (v > f.typical[1])
-                if odd.any():
-                    rows = np.flatnonzero(odd)
-                    parts.append(
-                        fnd.make(
-                            rows,
-                            code=f"{name}_unusual",
-                            severity="warning",
-                            column=label(name),
-                            field=name,
-                            values=v[rows],
-                            message=(
-                                f"{f.meaning} outside the usual adult {f.typical[0]:g}-{f.typical[1]:g} {f.unit}; "
-                                f"used, but check the value and its unit."
-                            ),
-                        )
-                    )
+    def __init__(self, canonical: pd.DataFrame, labels: dict[str, str]):
+        self.canonical, self.labels = canonical, labels
+        self.nums: dict[str, np.ndarray] = {
+            name: canonical[name].to_numpy(dtype=float)
+            for name in canonical.columns
+            if name in BY_NAME and BY_NAME[name].kind == "number"
+        }
+        self.given = dict(self.nums)
+        self.parts: list[pd.DataFrame] = []
 
-    def col(name):
-        return nums.get(name)
+    def col(self, name: str) -> np.ndarray | None:
+        return self.nums.get(name)
 
-    def rule(mask, code, severity, message, field, values=None):
+    def rule(self, mask, code, severity, message, field, values=None) -> None:
         mask = np.asarray(mask, dtype=bool)
         if mask.any():
             rows = np.flatnonzero(mask)
-            parts.append(
+            self.parts.append(
                 fnd.make(
                     rows,
                     code=code,
                     severity=severity,
                     message=message,
-                    column=label(field),
+                    column=self.labels.get(field, field),
                     field=field,
                     values=None if values is None else np.asarray(values)[rows],
                 )
             )
 
-    lvidd, lvids = col("lvidd_cm"), col("lvids_cm")
-    if lvidd is not None and lvids is not None:
-        with np.errstate(invalid="ignore"):
-            bad = lvids >= lvidd
-        rule(
-            bad,
-            "lvids_not_below_lvidd",
-            "error",
-            "LVIDs is not smaller than LVIDd: systolic measures (FS, volumes, stress, midwall) not computed. "
-            "Check that the diameters are not swapped.",
-            "lvids_cm",
-            lvids,
-        )
-        if bad.any():
-            nums["lvids_cm"] = np.where(bad, np.nan, lvids)
+    def blank(self, name: str, mask: np.ndarray) -> None:
+        if mask.any():
+            self.nums[name] = np.where(mask, np.nan, self.nums[name])
 
+    def cleaned(self) -> pd.DataFrame:
+        # changed columns are new arrays; unchanged ones stay the input's Series (shared, copied
+        # on write)
+        c = self.canonical
+        return pd.DataFrame(
+            {
+                name: self.nums[name]
+                if name in self.nums and self.nums[name] is not self.given[name]
+                else c[name]
+                for name in c.columns
+            },
+            index=c.index,
+            copy=False,
+        )
+
+
+def validate_parts(
+    canonical: pd.DataFrame, labels: dict[str, str] | None = None
+) -> tuple[pd.DataFrame, list[pd.DataFrame]]:
+    """:func:`validate` with the findings as one table per rule, in rule order (not yet joined:
+    the pipeline joins every step's findings once)."""
+    check = _Check(canonical, labels or {})
+    for rule in RULES:
+        rule(check)
+    return check.cleaned(), check.parts
+
+
+def ranges(check: _Check) -> None:
+    """Outside the field's hard range: impossible, blanked, an error; outside typical: a warning."""
+    for name in list(check.nums):
+        f, v = BY_NAME[name], check.nums[name]
+        with np.errstate(invalid="ignore"):
+            if f.hard is not None:
+                bad = (v < f.hard[0]) | (v > f.hard[1])
+                check.rule(
+                    bad,
+                    f"{name}_impossible",
+                    "error",
+                    f"{f.meaning} outside {f.hard[0]:g}-{f.hard[1]:g} {f.unit} is impossible; "
+                    "not used. Check the value and its unit.",
+                    name,
+                    v,
+                )
+                check.blank(name, bad)
+                v = check.nums[name]
+            if f.typical is not None:
+                check.rule(
+                    (v < f.typical[0]) | (v > f.typical[1]),
+                    f"{name}_unusual",
+                    "warning",
+                    f"{f.meaning} outside the usual adult {f.typical[0]:g}-{f.typical[1]:g} "
+                    f"{f.unit}; used, but check the value and its unit.",
+                    name,
+                    v,
+                )
+
+
+def diameters(check: _Check) -> None:
+    """LVIDs must be below LVIDd (else the systolic measures are withheld)."""
+    lvidd, lvids = check.col("lvidd_cm"), check.col("lvids_cm")
+    if lvidd is None or lvids is None:
+        return
+    with np.errstate(invalid="ignore"):
+        bad = lvids >= lvidd
+    check.rule(
+        bad,
+        "lvids_not_below_lvidd",
+        "error",
+        "LVIDs is not smaller than LVIDd: systolic measures (FS, volumes, stress, midwall) not "
+        "computed. Check that the diameters are not swapped.",
+        "lvids_cm",
+        lvids,
+    )
+    check.blank("lvids_cm", bad)
+
+
+def walls(check: _Check) -> None:
+    """Walls thicken in systole; a septum much thicker than the posterior wall misleads the cube."""
     for sys_name, dia_name, code in (
         ("pws_cm", "pwd_cm", "posterior_wall_thins_in_systole"),
         ("ivss_cm", "ivsd_cm", "septum_thins_in_systole"),
     ):
-        s, d = col(sys_name), col(dia_name)
+        s, d = check.col(sys_name), check.col(dia_name)
         if s is not None and d is not None:
             with np.errstate(invalid="ignore"):
-                rule(
+                check.rule(
                     s < d,
                     code,
                     "warning",
-                    f"{BY_NAME[sys_name].meaning} is thinner than at end-diastole; walls thicken as the "
-                    "ventricle ejects. Check the measurement.",
+                    f"{BY_NAME[sys_name].meaning} is thinner than at end-diastole; walls thicken as "
+                    "the ventricle ejects. Check the measurement.",
                     sys_name,
                     s,
                 )
-
-    ivsd, pwd = col("ivsd_cm"), col("pwd_cm")
+    ivsd, pwd = check.col("ivsd_cm"), check.col("pwd_cm")
     if ivsd is not None and pwd is not None:
         with np.errstate(invalid="ignore", divide="ignore"):
             ratio = ivsd / pwd
-            rule(
+            check.rule(
                 ratio >= SEPTAL_POSTERIOR_RATIO_MAX,
                 "septum_disproportionate",
                 "warning",
-                f"IVSd/PWd is {SEPTAL_POSTERIOR_RATIO_MAX:g} or more (asymmetric septal thickening): the linear "
-                "mass formula assumes a symmetric ventricle and overestimates mass. Consider a 2D or 3D method.",
+                f"IVSd/PWd is {SEPTAL_POSTERIOR_RATIO_MAX:g} or more (asymmetric septal thickening): "
+                "the linear mass formula assumes a symmetric ventricle and overestimates mass. "
+                "Consider a 2D or 3D method.",
                 "ivsd_cm",
                 ratio,
             )
 
-    sbp, dbp = col("sbp_mmhg"), col("dbp_mmhg")
-    if sbp is not None and dbp is not None:
-        with np.errstate(invalid="ignore"):
-            bad = dbp >= sbp
-        rule(
-            bad,
-            "dbp_not_below_sbp",
-            "error",
-            "Diastolic pressure is not below systolic: pressures not used. Check that they are not swapped.",
-            "dbp_mmhg",
-            dbp,
-        )
-        if bad.any():
-            nums["sbp_mmhg"] = np.where(bad, np.nan, sbp)
-            nums["dbp_mmhg"] = np.where(bad, np.nan, dbp)
 
-    age = col("age_years")
-    if age is not None:
+def pressures(check: _Check) -> None:
+    """Diastolic must be below systolic (else both are withheld)."""
+    sbp, dbp = check.col("sbp_mmhg"), check.col("dbp_mmhg")
+    if sbp is None or dbp is None:
+        return
+    with np.errstate(invalid="ignore"):
+        bad = dbp >= sbp
+    check.rule(
+        bad,
+        "dbp_not_below_sbp",
+        "error",
+        "Diastolic pressure is not below systolic: pressures not used. Check that they are not "
+        "swapped.",
+        "dbp_mmhg",
+        dbp,
+    )
+    check.blank("sbp_mmhg", bad)
+    check.blank("dbp_mmhg", bad)
+
+
+def age(check: _Check) -> None:
+    years = check.col("age_years")
+    if years is not None:
         with np.errstate(invalid="ignore"):
-            rule(
-                age < ADULT_AGE_YEARS,
+            check.rule(
+                years < ADULT_AGE_YEARS,
                 "under_18",
                 "warning",
-                "Under 18 years: adult reference values and cut-offs do not apply; use paediatric z-scores.",
+                "Under 18 years: adult reference values and cut-offs do not apply; use paediatric "
+                "z-scores.",
                 "age_years",
-                age,
+                years,
             )
 
-    out = canonical
-    n = len(out)
-    if "sex" not in out.columns:
-        parts.append(
+
+def sex(check: _Check) -> None:
+    """Sex is never guessed: a missing or unreadable one leaves the sex-specific results empty."""
+    c = check.canonical
+    if "sex" not in c.columns:
+        check.parts.append(
             fnd.make(
                 [-1],
                 code="no_sex_column",
@@ -204,41 +236,44 @@ def validate_parts(
                 "column 'sex' (F/M) or map yours with --columns.",
             )
         )
-        rule(
-            np.ones(n, bool),
+        check.rule(
+            np.ones(len(c), bool),
             "sex_missing",
             "warning",
             "Sex unknown: sex-specific classes and grades left empty.",
             "sex",
         )
+        return
+    s = c["sex"]
+    if isinstance(s.dtype, pd.CategoricalDtype) and set(s.cat.categories) <= set(SEXES):
+        unknown = s.array.codes < 0  # the mapped column (cells.SEX_DTYPE): no text compare
     else:
-        s = out["sex"]
-        if isinstance(s.dtype, pd.CategoricalDtype) and set(s.cat.categories) <= {"F", "M"}:
-            unknown = s.array.codes < 0  # the mapped column (cell_parse.SEX_DTYPE): no text compare
-        else:
-            unknown = ~s.isin(["F", "M"]).to_numpy()
-        rule(
-            unknown,
-            "sex_missing",
-            "warning",
-            "Sex missing or unreadable: sex-specific classes and grades left empty (never guessed).",
-            "sex",
-        )
+        unknown = ~s.isin(list(SEXES)).to_numpy()
+    check.rule(
+        unknown,
+        "sex_missing",
+        "warning",
+        "Sex missing or unreadable: sex-specific classes and grades left empty (never guessed).",
+        "sex",
+    )
 
-    if "patient_id" in out.columns and "study_date" in out.columns:
-        dup = _repeated_pairs(out["patient_id"], out["study_date"])
-        rule(
-            dup,
+
+def repeats(check: _Check) -> None:
+    """The same patient on the same date, or the same study id, on more than one row."""
+    c = check.canonical
+    if "patient_id" in c.columns and "study_date" in c.columns:
+        check.rule(
+            _repeated_pairs(c["patient_id"], c["study_date"]),
             "duplicate_study",
             "warning",
             "Another study of the same patient on the same date: check for a duplicate export.",
             "study_date",
         )
-    if "study_id" in out.columns:
-        sid = out["study_id"]
+    if "study_id" in c.columns:
+        sid = c["study_id"]
         dup = _repeated_ids(sid)
         if dup.any():
-            rule(
+            check.rule(
                 dup,
                 "duplicate_study_id",
                 "warning",
@@ -247,16 +282,9 @@ def validate_parts(
                 sid.to_numpy(dtype=object),
             )
 
-    # changed columns are new arrays; unchanged ones stay the input's Series (shared, copied on write)
-    cleaned = pd.DataFrame(
-        {
-            name: nums[name] if name in nums and nums[name] is not given[name] else canonical[name]
-            for name in canonical.columns
-        },
-        index=canonical.index,
-        copy=False,
-    )
-    return cleaned, parts
+
+# In order (a rule sees the values the rules before it blanked).
+RULES = (ranges, diameters, walls, pressures, age, sex, repeats)
 
 
 def _repeated_ids(sid: pd.Series) -> np.ndarray:

@@ -209,7 +209,7 @@ def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataF
 
     With ``allow_comma`` (delimiter not ','), a column of numbers written with a decimal comma is
     read too, unless every cell looks like a thousands separator ("1,234"). Columns are checked a
-    group at a time, all cells of a group at once (:func:`wallstress.grid_in.text_cells`): a
+    group at a time, all cells of a group at once (:func:`wallstress.read.grid.text_cells`): a
     50 x 20,000 table is one group, a 10^6-row table about one column per group.
     """
     n, k = table.shape

@@ -23,7 +23,7 @@ from pandas.api.types import is_object_dtype
 from wallstress import findings as fnd
 from wallstress.errors import InputError
 from wallstress.schema import units
-from wallstress.schema.headers import check_columns_option, header_score
+from wallstress.schema.headers import check_columns_option, header_score, match_header
 
 HEADER_SEARCH_ROWS = 20
 
@@ -301,7 +301,6 @@ def _repeated_header_rows(table: pd.DataFrame, header_texts: list[str]) -> list:
 
 
 def _combine_group(headers, group, columns):
-    from wallstress.schema.headers import match_header
 
     cols = check_columns_option(columns) if columns else None
     out = list(headers)

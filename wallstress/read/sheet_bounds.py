@@ -36,6 +36,7 @@ import numpy as np
 import pandas as pd
 
 from wallstress.errors import InputError
+from wallstress.read.grid import HEADER_SEARCH_ROWS
 
 SHEET_CELL_BUDGET = 20_000_000  # rows x columns a sheet may span before the bounded read is used
 ROW_GAP = 10_000  # empty rows that end the table in a bounded read
@@ -189,8 +190,6 @@ def bounded_xlsx_grid(p: Path, zf: zipfile.ZipFile, part: str, name: str, extent
         raise _too_large(p, name, block[1] - block[0], block[3] - block[2])
     refs, n_out = _outside_refs(rows, ones, cols, ones, block)
     if max_rows is not None:
-        from wallstress.read.grid import HEADER_SEARCH_ROWS
-
         row_hi = min(row_hi, block[0] + max_rows + HEADER_SEARCH_ROWS + 2)
     import openpyxl
 
@@ -302,8 +301,6 @@ def bounded_ods_grid(p: Path, zf: zipfile.ZipFile, name: str, extent: Extent, ru
         raise _too_large(p, name, block[1] - block[0], block[3] - block[2])
     refs, n_out = _outside_refs(runs[:, 0], runs[:, 1], runs[:, 2], runs[:, 3], block)
     if max_rows is not None:
-        from wallstress.read.grid import HEADER_SEARCH_ROWS
-
         row_hi = min(row_hi, block[0] + max_rows + HEADER_SEARCH_ROWS + 2)
     rows = _ods_walk(zf, name, bounds=(row_hi, col_hi))
     grid = pd.DataFrame(rows, dtype=object) if rows else pd.DataFrame()
@@ -356,8 +353,6 @@ def read_ods_sheet(p: Path, zf: zipfile.ZipFile, name: str, max_rows):
         return bounded_ods_grid(p, zf, name, extent, runs, max_rows)
     n_rows = extent.n_rows
     if max_rows is not None:
-        from wallstress.read.grid import HEADER_SEARCH_ROWS
-
         n_rows = min(n_rows, max_rows + HEADER_SEARCH_ROWS + 2 + int(runs[:, 0].min()))
     rows = _ods_walk(zf, name, bounds=(n_rows, extent.n_cols))
     return pd.DataFrame(rows, dtype=object), None

@@ -1,6 +1,6 @@
 """Reading workbooks (xlsx, ods): sheet choice, the fast reader with an openpyxl fallback, cell scan.
 
-The container is checked first (:mod:`wallstress.file_guards`). A sheet is read with python-calamine;
+The container is checked first (:mod:`wallstress.read.guards`). A sheet is read with python-calamine;
 when it fails, openpyxl (through defusedxml) reads it instead, with a note. Without ``sheet``, the first
 sheet whose header row is recognised is read. For xlsx, the sheet's XML is scanned for error cells and
 formulas never calculated, which the fast reader returns as empty cells.
@@ -137,7 +137,7 @@ def _read_workbook(p: Path, kind: str, sheet, max_rows, columns) -> StudyTable:
 def _sheet_grid(p: Path, wb, name: str, max_rows, kind: str = "xlsx"):
     """(grid, merged ranges, note): the sheet's cells from A1, dense.
 
-    The sheet's extent is measured first (:mod:`wallstress.sheet_bounds`); a sheet that reaches
+    The sheet's extent is measured first (:mod:`wallstress.read.sheet_bounds`); a sheet that reaches
     beyond ``SHEET_CELL_BUDGET`` cells is read bounded to its table, and the note names the far-off
     cells left out. Otherwise calamine (or openpyxl, when ``wb`` is None) reads it whole.
     """

@@ -3,7 +3,7 @@
 ``read_studies(path)`` returns the raw cells under the user's own headers (one row per study, in file
 order) plus everything noticed on the way (encoding, delimiter, decimal comma, header row, folded
 units row, duplicate headers, spreadsheet error values, formulas never calculated, over-long cells).
-Formulas and units are not touched here: ``mapping.map_columns`` reads the cells.
+Formulas and units are not touched here: ``prepare.mapping.map_columns`` reads the cells.
 
 A file that cannot be used at all raises ``InputError`` with one line naming the file, what is
 wrong and what to do. Workbooks are checked before any parser sees them: a zip container must stay
@@ -15,16 +15,11 @@ Before anything is read, the path must be a regular file (a device such as ``/de
 a socket is refused: it could block or never end) of at most ``READ_LIMIT_BYTES`` (larger CSV and
 parquet files go through ``--chunk-rows``). A sheet whose cells reach far beyond its table (a stray
 cell at XFD1048576) is measured before the fast reader expands it, and read bounded to its table
-(:mod:`wallstress.sheet_bounds`). ``check_fits_xlsx`` refuses, before any computing, a study list
-whose results cannot fit an xlsx sheet.
+(:mod:`wallstress.read.sheet_bounds`).
 
 A file with a header and no data rows is not an error: it returns 0 rows with a ``no_rows`` finding.
 
-This module dispatches by format and reads parquet; the rest lives in :mod:`wallstress.file_guards`
-(format sniffing, zip and XML checks), :mod:`wallstress.csv_in` (encoding, delimiter, decimal comma),
-:mod:`wallstress.sheet_in` (xlsx/ods sheets), :mod:`wallstress.sheet_bounds` (sheet extent and bounded reads), :mod:`wallstress.grid_in` (header row, units row,
-cell findings) and :mod:`wallstress.study_table` (:class:`StudyTable`). Their names stay importable
-from here.
+This module dispatches by format and reads parquet; the other modules of ``read/`` do the rest.
 
 References
 ----------
@@ -46,8 +41,6 @@ import pyarrow as pa
 
 from wallstress import findings as fnd
 from wallstress.errors import InputError
-
-# moved to modules of their own; re-exported so that ``from wallstress.readers import ...`` keeps working
 from wallstress.read.delimited import (
     _read_csv,
 )

@@ -13,25 +13,26 @@ from wallstress.figures.transitions import transition_matrix, transitions_figure
 from wallstress.figures.trend import lvmi_trend
 from wallstress.report.html import COLUMN_LABELS, _e, _Figures, _fmt, _kv, _table, _verified_text
 from wallstress.report.inputs import _lsc_g
+from wallstress.schema.outputs import OUT
 
 VISIT_COLUMNS: tuple[str, ...] = (
     "study_date",
     "years_since_baseline",
     "study_id",
-    "lv_mass_g",
-    "lvmi_bsa_g_m2",
-    "lvmi_h27_g_m2_7",
-    "rwt",
-    "geometry",
+    OUT.lv_mass_g,
+    OUT.lvmi_bsa_g_m2,
+    OUT.lvmi_h27_g_m2_7,
+    OUT.rwt,
+    OUT.geometry,
 )
 
 
 VISIT_EXTRA_COLUMNS: tuple[str, ...] = (
     "lv_mass_change_from_baseline_g",
     "lv_mass_real_change_from_baseline",
-    "cess_kdyn_cm2",
-    "midwall_fs_pct",
-    "flags",
+    OUT.cess_kdyn_cm2,
+    OUT.midwall_fs_pct,
+    OUT.flags,
 )
 
 
@@ -85,8 +86,8 @@ def _cohort_section(tracking, reference_set, figs: _Figures) -> str:
         matrix.index.name = "first \\ last"
         parts.append(_table(matrix, index=True))
     if visits is not None and len(visits):
-        mass_index = getattr(reference_set, "mass_index", None) or "lvmi_bsa_g_m2"
-        if mass_index in visits.columns and "rwt" in visits.columns:
+        mass_index = getattr(reference_set, "mass_index", None) or OUT.lvmi_bsa_g_m2
+        if mass_index in visits.columns and OUT.rwt in visits.columns:
             parts.append(
                 figs.embed(
                     geometry_plane(
@@ -115,15 +116,15 @@ def _cohort_section(tracking, reference_set, figs: _Figures) -> str:
 def _prevalence_wide(t):
     """A long prevalence table (follow_up_year, geometry, n_patients, pct_of_seen[, sex]) as one
     row per year (and sex) and one column per class, "n (pct %)"; other shapes pass through."""
-    need = {"follow_up_year", "geometry", "n_patients"}
+    need = {"follow_up_year", OUT.geometry, "n_patients"}
     if t is None or not need.issubset(t.columns):
         return t
     keys = [c for c in ("sex", "follow_up_year") if c in t.columns]
     n = t["n_patients"].map(_fmt)
     if "pct_of_seen" in t.columns:
         n = n + " (" + t["pct_of_seen"].map(lambda v: f"{v:.0f}" if v == v else "") + " %)"
-    cell = t.assign(_cell=n, geometry=t["geometry"].map(lambda g: GEOMETRY_LABELS.get(g, g)))
-    wide = cell.pivot_table(index=keys, columns="geometry", values="_cell", aggfunc="first")
+    cell = t.assign(_cell=n, geometry=t[OUT.geometry].map(lambda g: GEOMETRY_LABELS.get(g, g)))
+    wide = cell.pivot_table(index=keys, columns=OUT.geometry, values="_cell", aggfunc="first")
     order = [GEOMETRY_LABELS.get(g, g) for g in (*GEOMETRY_CLASSES, "")]
     wide = wide[
         [c for c in order if c in wide.columns] + [c for c in wide.columns if c not in order]
@@ -177,7 +178,7 @@ def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> s
             extra = [
                 (
                     COLUMN_LABELS.get(c, c),
-                    _e(GEOMETRY_LABELS.get(row[c], row[c]) if "geometry" in c else row[c]),
+                    _e(GEOMETRY_LABELS.get(row[c], row[c]) if OUT.geometry in c else row[c]),
                 )
                 for c in (*PATIENT_COLUMNS, "mass_verdict", "geometry_verdict")
                 if c in row.index

@@ -18,7 +18,7 @@ import pandas as pd
 
 from wallstress.figures import save as fig_mod
 from wallstress.figures.common import GEOMETRY_LABELS
-from wallstress.schema.outputs import OUTPUTS
+from wallstress.schema.outputs import OUT, OUTPUTS
 
 MAX_TABLE_ROWS = 500
 
@@ -133,7 +133,7 @@ def _table(df: pd.DataFrame, *, max_rows: int = MAX_TABLE_ROWS, index: bool = Fa
         shown = shown.reset_index()
     shown = shown.copy()
     for c in shown.columns:
-        if "geometry" in str(c) and not _is_num(shown[c]):
+        if OUT.geometry in str(c) and not _is_num(shown[c]):
             shown[c] = shown[c].map(lambda g: GEOMETRY_LABELS.get(g, g))
     nums = {c: _is_num(shown[c]) for c in shown.columns}
     short = (

@@ -13,7 +13,9 @@ import numpy as np
 import pandas as pd
 
 from wallstress import findings as fnd
+from wallstress.analysis.references import DEFAULT_SET, list_sets, load_set, model_coefficients
 from wallstress.figures.common import GEOMETRY_LABELS, LINE_KEYS, _sex
+from wallstress.schema.outputs import OUT
 
 FALLBACK_LSC_G = 35.0  # Palmieri V et al., J Am Coll Cardiol 1999 (used only without a set)
 
@@ -27,8 +29,6 @@ def _resolve_reference_set(analysis, reference_set):
     if name is None:
         ref = methods.get("reference_set")
         if isinstance(ref, Mapping):
-            from wallstress.analysis.references import list_sets
-
             bundled = ref.get("name") in list_sets()
             name = ref.get("name") if bundled else (ref.get("path") or ref.get("name"))
         elif isinstance(ref, str):
@@ -38,8 +38,6 @@ def _resolve_reference_set(analysis, reference_set):
         if isinstance(opts, Mapping):
             name = opts.get("reference")
     try:
-        from wallstress.analysis.references import DEFAULT_SET, load_set
-
         return load_set(name or DEFAULT_SET), ""
     except Exception as exc:  # a report must still be written without cut-offs
         return None, f"reference set {name!r} could not be loaded ({exc}); figures show no cut-offs"
@@ -49,7 +47,6 @@ def _coefficients(reference_set, model: str) -> dict:
     try:
         if reference_set is not None:
             return dict(reference_set.coefficients(model))
-        from wallstress.analysis.references import model_coefficients
 
         return dict(model_coefficients(model))
     except Exception:
@@ -101,7 +98,7 @@ def _sex_labels(frame: pd.DataFrame) -> pd.Series:
 
 
 def _geometry_labels(frame: pd.DataFrame) -> pd.Series:
-    if "geometry" not in frame.columns:
+    if OUT.geometry not in frame.columns:
         return pd.Series(["undetermined"] * len(frame), index=frame.index)
-    g = frame["geometry"].astype("string").fillna("").str.strip()
+    g = frame[OUT.geometry].astype("string").fillna("").str.strip()
     return g.map(lambda x: GEOMETRY_LABELS.get(x, x or "undetermined"))

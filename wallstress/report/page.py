@@ -11,14 +11,10 @@ figures; with tracking, the cohort (verdicts, transitions, prevalence) and a pag
 figure, visits, verdict); methods and cautions (reference set with sources, every value that is
 from memory or otherwise unverified, the methods record).
 
-This module assembles the page; the parts live in :mod:`wallstress.report_sections` (batch
-sections), :mod:`wallstress.report_cohort` (cohort and patient pages), :mod:`wallstress.report_html`
-(escaped tables and inline figures), :mod:`wallstress.report_inputs` (reference set, results,
-findings) and :mod:`wallstress.report_style` (CSS, Content-Security-Policy). Their names stay
-importable from here.
-
-wallstress supports, and never replaces, a qualified clinician's judgement and the local lab's
-protocols and reference values.
+This module assembles the page; the parts live in :mod:`wallstress.report.sections` (batch
+sections), :mod:`wallstress.report.cohort` (cohort and patient pages), :mod:`wallstress.report.html`
+(escaped tables and inline figures), :mod:`wallstress.report.inputs` (reference set, results,
+findings) and :mod:`wallstress.report.style` (CSS, Content-Security-Policy).
 """
 
 from __future__ import annotations
@@ -29,7 +25,7 @@ from pathlib import Path
 
 import numpy as np
 
-# moved to modules of their own; re-exported so that ``from wallstress.report import ...`` keeps working
+from wallstress import __version__
 from wallstress.report.cohort import (
     _cohort_section,
     _patient_pages,
@@ -82,10 +78,6 @@ def render_report(
     findings = _findings(analysis)
     figs = _Figures(figures_dir)
     title_text = title or "wallstress report"
-    try:
-        from wallstress import __version__ as version
-    except ImportError:  # pragma: no cover
-        version = "?"
     run_utc = (getattr(analysis, "methods", None) or {}).get("run_utc")
     made = str(run_utc) if run_utc else _dt.datetime.now().strftime("%Y-%m-%d %H:%M")
     nav = [("summary", "Summary"), ("counts", "Geometry by sex"), ("flagged", "Flagged rows")]
@@ -96,7 +88,7 @@ def render_report(
     body = [
         '<header class="top">',
         f"<h1>{html.escape(title_text)}</h1>",
-        f'<div class="meta">made by wallstress {html.escape(str(version))} on {made}; '
+        f'<div class="meta">made by wallstress {html.escape(__version__)} on {made}; '
         f"reference set {_e(getattr(rs, 'name', 'none'))}</div>",
         "<nav>" + "".join(f'<a href="#{a}">{html.escape(t)}</a>' for a, t in nav) + "</nav>",
         "</header><main>",

@@ -1,7 +1,6 @@
 """The batch sections of the report: summary, geometry by sex, flagged rows, figures, methods.
 
-wallstress supports, and never replaces, a qualified clinician's judgement and the local lab's
-protocols and reference values; the methods section says so, and lists every value that is from
+The methods section carries the clinical caution and lists every value that is from
 memory or otherwise unverified.
 """
 
@@ -35,12 +34,12 @@ from wallstress.report.html import (
     _verified_text,
 )
 from wallstress.report.inputs import _coefficients, _geometry_labels, _midwall_line, _sex_labels
-from wallstress.schema.outputs import SUMMARY_MEASURES
+from wallstress.schema.outputs import OUT, SUMMARY_MEASURES
+from wallstress.schema.vocabulary import CLINICAL_CAUTION
 
 CAUTION = (
-    "wallstress supports, and never replaces, a qualified clinician's judgement and the local "
-    "lab's protocols and reference values. Check every flagged row, and read each number against "
-    "the reference values your lab uses."
+    f"{CLINICAL_CAUTION} Check every flagged row, and read each number against the reference "
+    "values your lab uses."
 )
 
 
@@ -54,11 +53,11 @@ SEVERITY_RANK: dict[str, int] = {"note": 0, "warning": 1, "error": 2}
 
 
 CUTOFF_MEASURES: tuple[str, ...] = (
-    "lvmi_bsa_g_m2",
-    "lvmi_h27_g_m2_7",
-    "rwt",
-    "edv_index_ml_m2",
-    "concentricity_g_ml23",
+    OUT.lvmi_bsa_g_m2,
+    OUT.lvmi_h27_g_m2_7,
+    OUT.rwt,
+    OUT.edv_index_ml_m2,
+    OUT.concentricity_g_ml23,
     "lvidd_cm",
     "ivsd_cm",
     "pwd_cm",
@@ -74,8 +73,8 @@ def _summary_section(analysis, frame: pd.DataFrame, findings: pd.DataFrame) -> s
     sev = rowwise.groupby("row")["severity"].agg(
         lambda s: max((SEVERITY_RANK.get(x, 0) for x in s), default=0)
     )
-    if "flags" in frame.columns:
-        flagged = int(frame["flags"].astype("string").fillna("").str.strip().ne("").sum())
+    if OUT.flags in frame.columns:
+        flagged = int(frame[OUT.flags].astype("string").fillna("").str.strip().ne("").sum())
     else:
         flagged = int(rowwise["row"].nunique())
     n_err = int((sev == 2).sum())
@@ -243,7 +242,7 @@ def _flagged_section(frame: pd.DataFrame, findings: pd.DataFrame, max_rows: int)
 
 def _figures_section(frame, reference_set, figs: _Figures) -> str:
     parts = ['<section id="figures"><h2>Figures</h2>']
-    mass_index = getattr(reference_set, "mass_index", None) or "lvmi_bsa_g_m2"
+    mass_index = getattr(reference_set, "mass_index", None) or OUT.lvmi_bsa_g_m2
     parts.append(
         figs.embed(
             geometry_plane(frame, reference_set, mass_index=mass_index),

@@ -10,7 +10,7 @@ from __future__ import annotations
 import re
 
 from wallstress.schema.fields import BY_NAME
-from wallstress.schema.outputs import OUTPUT_UNITS
+from wallstress.schema.outputs import OUT, OUTPUT_UNITS
 
 # Name endings -> unit, longest first (for columns of other tables, e.g. tracking).
 _SUFFIX_UNITS: tuple[tuple[str, str], ...] = (
@@ -92,7 +92,7 @@ def column_unit(name: str) -> str:
     if name in BY_NAME:
         f = BY_NAME[name]
         return f.unit or ("F/M" if f.kind == "sex" else "")
-    if name == "rwt" or name.endswith("_rwt"):
+    if name == OUT.rwt or name.endswith("_rwt"):
         return "ratio"
     for suffix, unit in _SUFFIX_UNITS:
         if name.endswith(suffix):

@@ -14,24 +14,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from types import MappingProxyType
 
-from wallstress.formulas import body_size, mass, stress
-
 PUBLISHED, FROM_MEMORY = "published", "from_memory"
-
-
-# The four geometry classes (Ganau 1992), in reading order; "" where a row cannot be classed.
-GEOMETRY_CLASSES: tuple[str, ...] = (
-    NORMAL := "normal",
-    CONCENTRIC_REMODELLING := "concentric_remodelling",
-    CONCENTRIC_HYPERTROPHY := "concentric_hypertrophy",
-    ECCENTRIC_HYPERTROPHY := "eccentric_hypertrophy",
-)
-HYPERTROPHY: tuple[str, ...] = (CONCENTRIC_HYPERTROPHY, ECCENTRIC_HYPERTROPHY)
-
-
-def in_words(value: str) -> str:
-    """A class, grade or verdict code as words: ``concentric_remodelling`` -> ``concentric remodelling``."""
-    return str(value).replace("_", " ")
 
 
 @dataclass(frozen=True)
@@ -257,40 +240,15 @@ OUTPUTS: tuple[Output, ...] = (
             "the reference set)",
         ),
     ),
-    Output(
-        "lvmi_grade",
-        "grade",
-        "LVMI grade",
-        "analysis.classify.grade_codes",
-        inputs=(*LINEAR, "height_cm", "weight_kg", "sex"),
-    ),
-    Output(
-        "rwt_grade",
-        "grade",
-        "RWT grade",
-        "analysis.classify.grade_codes",
-        inputs=("lvidd_cm", "pwd_cm", "sex"),
-    ),
-    Output(
-        "lvidd_grade",
-        "grade",
-        "LVIDd grade",
-        "analysis.classify.grade_codes",
-        inputs=("lvidd_cm", "sex"),
-    ),
-    Output(
-        "ivsd_grade",
-        "grade",
-        "IVSd grade",
-        "analysis.classify.grade_codes",
-        inputs=("ivsd_cm", "sex"),
-    ),
-    Output(
-        "pwd_grade",
-        "grade",
-        "PWd grade",
-        "analysis.classify.grade_codes",
-        inputs=("pwd_cm", "sex"),
+    *(
+        Output(f"{stem}_grade", "grade", f"{label} grade", "analysis.classify.grade_codes", inputs)
+        for stem, label, inputs in (
+            ("lvmi", "LVMI", (*LINEAR, "height_cm", "weight_kg", "sex")),
+            ("rwt", "RWT", ("lvidd_cm", "pwd_cm", "sex")),
+            ("lvidd", "LVIDd", ("lvidd_cm", "sex")),
+            ("ivsd", "IVSd", ("ivsd_cm", "sex")),
+            ("pwd", "PWd", ("pwd_cm", "sex")),
+        )
     ),
     Output(
         "fs_pct",
@@ -518,12 +476,20 @@ TRACKED_MEASURES: tuple[tuple[str, str, str], ...] = tuple(
     (o.name, o.tracked, o.name[len(o.tracked) + 1 :]) for o in OUTPUTS if o.tracked
 )
 
-# The choices each method option takes, from the formula modules' tuples (the CLI and Options
-# checks read these; nothing retypes them).
-METHOD_CHOICES: dict[str, tuple[str, ...]] = {
-    "bsa_method": body_size.BSA_METHODS,
-    "mass_method": mass.LINEAR_MASS_METHODS + mass.AREA_MASS_METHODS,
-    "rwt_method": mass.RWT_METHODS,
-    "es_pressure": (*stress.ES_PRESSURE_METHODS, "measured"),
-    "stress_constant": stress.STRESS_CONSTANTS,
-}
+
+class _OutputNames:
+    """``OUT.lv_mass_g == "lv_mass_g"``: other stages name an output column through the registry,
+    so a column renamed or dropped here fails loudly where it is used, never as an empty column."""
+
+    __slots__ = ()
+
+    def __getattr__(self, name: str) -> str:
+        if name in BY_OUTPUT:
+            return name
+        raise AttributeError(f"{name!r} is not an output column (see wallstress.schema.outputs)")
+
+    def __dir__(self):
+        return list(OUTPUT_COLUMNS)
+
+
+OUT = _OutputNames()

@@ -11,7 +11,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from wallstress.schema.outputs import GEOMETRY_CLASSES
+from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import GEOMETRY_CLASSES
 
 UNDETERMINED = "undetermined"
 
@@ -50,26 +51,26 @@ def _prevalence(visits: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
         {
             "pid": pid[order],
             "year": year[order],
-            "geometry": visits["geometry"].to_numpy()[order],
+            OUT.geometry: visits[OUT.geometry].to_numpy()[order],
             "sex": pd.Series(visits["sex"].to_numpy()[order], dtype="string").fillna("unknown"),
         }
     )
     t = t[~t.duplicated(["pid", "year"])]
-    t["geometry"] = t["geometry"].where(t["geometry"] != "", UNDETERMINED)
+    t[OUT.geometry] = t[OUT.geometry].where(t[OUT.geometry] != "", UNDETERMINED)
     classes = [*GEOMETRY_CLASSES, UNDETERMINED]
 
     def table(by: list[str]) -> pd.DataFrame:
-        counts = t.groupby([*by, "geometry"]).size().unstack("geometry", fill_value=0)
+        counts = t.groupby([*by, OUT.geometry]).size().unstack(OUT.geometry, fill_value=0)
         counts = counts.reindex(columns=classes, fill_value=0)
         long = counts.stack().rename("n_patients").reset_index()
         seen = long.groupby(by)["n_patients"].transform("sum")
-        classified = long["n_patients"].where(long["geometry"] != UNDETERMINED, 0)
+        classified = long["n_patients"].where(long[OUT.geometry] != UNDETERMINED, 0)
         n_cls = classified.groupby([long[b] for b in by]).transform("sum")
         long["n_seen"] = seen.astype(np.int64)
         long["pct_of_seen"] = long["n_patients"] / seen * 100.0
         with np.errstate(invalid="ignore", divide="ignore"):
             long["pct_of_classified"] = np.where(
-                (long["geometry"] != UNDETERMINED) & (n_cls > 0),
+                (long[OUT.geometry] != UNDETERMINED) & (n_cls > 0),
                 long["n_patients"] / n_cls * 100.0,
                 np.nan,
             )

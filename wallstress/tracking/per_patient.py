@@ -15,11 +15,12 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from wallstress.schema.outputs import CONCENTRIC_REMODELLING, HYPERTROPHY, NORMAL
+from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import CONCENTRIC_REMODELLING, HYPERTROPHY, NORMAL
 from wallstress.tracking.statistics import grouped_linear_fit
 from wallstress.tracking.visits import _NS_PER_DAY, DAYS_PER_YEAR, MEASURES
 
-SLOPE_MEASURES: tuple[str, ...] = ("lv_mass_g", "lvmi_bsa_g_m2", "lvmi_h27_g_m2_7", "rwt")
+SLOPE_MEASURES: tuple[str, ...] = (OUT.lv_mass_g, OUT.lvmi_bsa_g_m2, OUT.lvmi_h27_g_m2_7, OUT.rwt)
 
 
 MASS_VERDICT_TEXT: dict[str, str] = {
@@ -87,7 +88,7 @@ def _visits(v: pd.DataFrame, gid, starts, ids, lsc: float) -> pd.DataFrame:
         "sex": v["sex"].to_numpy(),
         "height_cm": v["height_cm"].to_numpy(),
         "weight_kg": v["weight_kg"].to_numpy(),
-        "geometry": v["geometry"].to_numpy(),
+        OUT.geometry: v[OUT.geometry].to_numpy(),
     }
     keys = pd.Series(gid)
     for col, stem, unit in MEASURES:
@@ -101,9 +102,9 @@ def _visits(v: pd.DataFrame, gid, starts, ids, lsc: float) -> pd.DataFrame:
             out[_name(stem, what, unit)] = d
             with np.errstate(invalid="ignore", divide="ignore"):
                 out[f"{stem}_{what}_pct"] = d / ref.to_numpy() * 100.0
-            if col == "lv_mass_g":
+            if col == OUT.lv_mass_g:
                 out[f"lv_mass_real_{what}"] = _real(d, lsc)
-    out["flags"] = v["flags"].to_numpy()
+    out[OUT.flags] = v[OUT.flags].to_numpy()
     return pd.DataFrame(out)
 
 
@@ -143,7 +144,7 @@ def _patients(visits, gid, starts, ends, ids, n_groups, n_studies, lsc) -> pd.Da
         first, last, _ = _first_last(visits[col].reset_index(drop=True), keys)
         out[_name(stem, "first", unit)] = first
         out[_name(stem, "last", unit)] = last
-    n_mass = visits["lv_mass_g"].groupby(keys, sort=False).count().to_numpy()
+    n_mass = visits[OUT.lv_mass_g].groupby(keys, sort=False).count().to_numpy()
     mass_change = np.where(n_mass >= 2, out["lv_mass_last_g"] - out["lv_mass_first_g"], np.nan)
     out["lv_mass_change_g"] = mass_change
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -159,7 +160,12 @@ def _patients(visits, gid, starts, ends, ids, n_groups, n_studies, lsc) -> pd.Da
         out[f"{stem}_slope_ci_high_{per}"] = fit["ci_high"].to_numpy()
         out[f"{stem}_slope_n"] = fit["n"].to_numpy()
 
-    geo = visits["geometry"].where(visits["geometry"] != "").astype("string").reset_index(drop=True)
+    geo = (
+        visits[OUT.geometry]
+        .where(visits[OUT.geometry] != "")
+        .astype("string")
+        .reset_index(drop=True)
+    )
     g_first, g_last, n_geo = _first_last(geo, keys)
     g_first = pd.Series(g_first, dtype="string").fillna("").to_numpy(dtype=object)
     g_last = pd.Series(g_last, dtype="string").fillna("").to_numpy(dtype=object)

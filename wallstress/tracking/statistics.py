@@ -20,6 +20,8 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from wallstress.analysis import references
+
 # Bland & Altman: 95 % of differences between two measurements of one subject lie within
 # 1.96 * sqrt(2) * Sw (the published rounding of the normal quantile is kept on purpose).
 _Z95 = 1.96
@@ -128,7 +130,6 @@ def _resolve_lsc(options, within_subject_sd_g, lsc_g) -> tuple[float, dict]:
             "source": "Bland JM, Altman DG. Measurement error. BMJ 1996;313:744",
             "verified": "lab",
         }
-    from wallstress.analysis import references
 
     reference = getattr(options, "reference", references.DEFAULT_SET)
     try:

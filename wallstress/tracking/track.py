@@ -1,6 +1,6 @@
 """Follow-up over years: each patient's remodelling judged against measurement reproducibility.
 
-``track`` takes analysed studies (an :class:`~wallstress.result.Analysis`, a frame with canonical and
+``track`` takes analysed studies (an :class:`~wallstress.analysis.result.Analysis`, a frame with canonical and
 output columns, or a raw study list, which it analyses first) and returns, in one :class:`Tracking`:
 
 - ``visits``: one row per patient and study day, in date order, with the change of LV mass, both LV
@@ -16,13 +16,10 @@ output columns, or a raw study list, which it analyses first) and returns, in on
 Everything is computed with grouped, vectorised operations (sort once, then ``bincount`` and
 ``groupby`` transforms); there is no Python loop over patients on the hot path.
 
-The work is split by subject: :mod:`wallstress.followup_input` (studies -> one row per patient and
-day), :mod:`wallstress.per_patient` (visits and patients tables, verdicts),
-:mod:`wallstress.followup_stats` (reproducibility, LSC, grouped slopes) and :mod:`wallstress.cohort`
-(transitions, prevalence). Their names stay importable from here.
-
-These summaries support, and never replace, a qualified clinician's judgement and the local lab's
-protocols and reference values.
+The work is split by subject: :mod:`wallstress.tracking.visits` (studies -> one row per patient and
+day), :mod:`wallstress.tracking.per_patient` (visits and patients tables, verdicts),
+:mod:`wallstress.tracking.statistics` (reproducibility, LSC, grouped slopes) and :mod:`wallstress.tracking.cohort_tables`
+(transitions, prevalence).
 
 References
 ----------
@@ -42,9 +39,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from wallstress import __version__
 from wallstress import findings as fnd
-
-# moved to modules of their own; re-exported so that ``from wallstress.tracking import ...`` keeps working
+from wallstress.options import Options
+from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import CLINICAL_CAUTION
 from wallstress.tracking.cohort_tables import (
     _prevalence,
     _transitions,
@@ -72,10 +71,7 @@ from wallstress.tracking.visits import (
     _single_study_findings,
 )
 
-CAUTION = (
-    "These follow-up summaries support, and never replace, a qualified clinician's judgement and the "
-    "local lab's protocols and reference values."
-)
+CAUTION = f"Follow-up summaries: {CLINICAL_CAUTION}"
 
 
 @dataclass
@@ -144,8 +140,6 @@ def track(
     if same_day not in SAME_DAY_RULES:
         raise ValueError(f"same_day must be one of {SAME_DAY_RULES}, got {same_day!r}")
     if options is None:
-        from wallstress.options import Options
-
         options = Options()
     lsc, lsc_record = _resolve_lsc(options, within_subject_sd_g, lsc_g)
     frame = _as_frame(studies, options)
@@ -182,7 +176,7 @@ def track(
         s, group_pcode, patients["n_visits"].to_numpy(), len(patient_ids)
     )
     findings = fnd.concat(found)
-    patients["flags"] = _patient_flags(findings, s, group_pcode, len(patient_ids))
+    patients[OUT.flags] = _patient_flags(findings, s, group_pcode, len(patient_ids))
     transitions = _transitions(patients)
     by_year, by_sex = _prevalence(visits)
 
@@ -200,7 +194,6 @@ def track(
 
 
 def _methods(options, lsc_record: dict, same_day: str, counts: dict) -> dict:
-    from wallstress import __version__
 
     same_day_text = {
         "mean": "several studies of one patient on one day are averaged into one visit (numeric measures: "

@@ -12,8 +12,9 @@ import numpy as np
 import pandas as pd
 
 from wallstress import findings as fnd
+from wallstress.analysis.pipeline import analyse_with_findings
 from wallstress.errors import InputError
-from wallstress.schema.outputs import TRACKED_MEASURES
+from wallstress.schema.outputs import OUT, TRACKED_MEASURES
 from wallstress.tracking.cohort_tables import GEOMETRY_CLASSES
 
 SAME_DAY_RULES: tuple[str, ...] = ("mean", "last")
@@ -46,9 +47,8 @@ def _as_frame(studies, options) -> pd.DataFrame:
         raise InputError(
             f"track needs an Analysis or a DataFrame of studies, got {type(studies).__name__}"
         )
-    if "lv_mass_g" in studies.columns:
+    if OUT.lv_mass_g in studies.columns:
         return studies
-    from wallstress.analysis.pipeline import analyse_with_findings
 
     return analyse_with_findings(studies, options).frame()
 
@@ -116,17 +116,17 @@ def _prepare(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[pd.DataFrame], dic
             )
         else:
             out[col] = np.nan
-    if "geometry" in frame.columns:
-        g = frame["geometry"].astype("string").fillna("").reset_index(drop=True)
-        out["geometry"] = g.where(g.isin(GEOMETRY_CLASSES), "").astype(object)
+    if OUT.geometry in frame.columns:
+        g = frame[OUT.geometry].astype("string").fillna("").reset_index(drop=True)
+        out[OUT.geometry] = g.where(g.isin(GEOMETRY_CLASSES), "").astype(object)
     else:
-        out["geometry"] = ""
-    if "flags" in frame.columns:
-        out["flags"] = (
-            frame["flags"].astype("string").fillna("").reset_index(drop=True).astype(object)
+        out[OUT.geometry] = ""
+    if OUT.flags in frame.columns:
+        out[OUT.flags] = (
+            frame[OUT.flags].astype("string").fillna("").reset_index(drop=True).astype(object)
         )
     else:
-        out["flags"] = ""
+        out[OUT.flags] = ""
 
     found = []
     no_pid = codes < 0
@@ -205,18 +205,18 @@ def _collapse_same_day(s: pd.DataFrame, rule: str) -> tuple[pd.DataFrame, list[p
     merged[num_cols] = g[num_cols].mean().to_numpy()
     sex = g["sex"].last()  # last non-missing value
     merged["sex"] = sex.to_numpy()
-    geo = dup["geometry"].where(dup["geometry"] != "")
+    geo = dup[OUT.geometry].where(dup[OUT.geometry] != "")
     n_geo = geo.groupby(dup_visit, sort=False).nunique()
-    n_blank = (dup["geometry"] == "").groupby(dup_visit, sort=False).sum()
+    n_blank = (dup[OUT.geometry] == "").groupby(dup_visit, sort=False).sum()
     agree = (n_geo == 1) & (n_blank == 0)
-    merged["geometry"] = np.where(
+    merged[OUT.geometry] = np.where(
         agree.to_numpy(), geo.groupby(dup_visit, sort=False).last().to_numpy(), ""
     )
     merged["study_id"] = (
         dup["study_id"].astype(str).groupby(dup_visit, sort=False).agg(";".join).to_numpy()
     )
-    merged["flags"] = (
-        dup["flags"]
+    merged[OUT.flags] = (
+        dup[OUT.flags]
         .groupby(dup_visit, sort=False)
         .agg(lambda x: ";".join(dict.fromkeys(c for f in x for c in f.split(";") if c)))
         .to_numpy()
@@ -240,8 +240,8 @@ def _collapse_same_day(s: pd.DataFrame, rule: str) -> tuple[pd.DataFrame, list[p
                 disagree_rows,
                 code="same_day_geometry_differs",
                 severity="warning",
-                column="geometry",
-                field="geometry",
+                column=OUT.geometry,
+                field=OUT.geometry,
                 message="studies of the same day give different geometry classes: the visit's geometry "
                 "is left undecided; review the measurements",
             )

@@ -2,7 +2,7 @@
 
 CSV keeps the study list's delimiter, decimal mark and BOM when the input was CSV; formula-like text
 is reported (finding ``formula_like_text``) and optionally escaped. All files of one write are
-committed together (:func:`wallstress.safety.atomic_files`).
+committed together (:func:`wallstress.write.safety.atomic_files`).
 """
 
 from __future__ import annotations

@@ -14,13 +14,9 @@ import numpy as np
 import pandas as pd
 
 from wallstress import __version__
+from wallstress.schema.vocabulary import CLINICAL_CAUTION, FROM_MEMORY_CAUTION
 
-CAUTIONS: tuple[str, ...] = (
-    "wallstress supports, and never replaces, a qualified clinician's judgement and the local "
-    "laboratory's protocols and reference values.",
-    "Values marked as from memory were recalled, not checked against the published text; results "
-    "that depend on them are provisional (listed as 'value from memory').",
-)
+CAUTIONS: tuple[str, ...] = (CLINICAL_CAUTION, FROM_MEMORY_CAUTION)
 
 
 def methods_rows(

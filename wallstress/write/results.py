@@ -12,16 +12,13 @@ Formats, chosen by the suffix of the output path:
   ``name.methods.json`` beside it.
 - ``.parquet``: likewise (``name.findings.parquet``, ``name.methods.json``).
 
-Never-harm rules (see :mod:`wallstress.safety`): every file goes through a temporary file in the
+Never-harm rules (see :mod:`wallstress.write.safety`): every file goes through a temporary file in the
 target folder and ``os.replace``; the input file is never changed except with ``in_place``, and then
 only after a verified backup; text is written as text (no cell of ours becomes a formula, error value
 or link); formula-like text in CSV outputs is reported and optionally escaped.
 
 This module plans a write and dispatches it by format; the work is done in
-:mod:`wallstress.xlsx_out` (workbooks), :mod:`wallstress.flat_out` (csv, parquet),
-:mod:`wallstress.methods_sheet` (the methods record), :mod:`wallstress.output_units` (units in
-headers) and :mod:`wallstress.output_parts` (:class:`WriteReport`). Their names stay importable from
-here.
+:mod:`wallstress.write.xlsx.workbook` (workbooks) and :mod:`wallstress.write.flat` (csv, parquet).
 """
 
 from __future__ import annotations
@@ -34,8 +31,6 @@ import pandas as pd
 from wallstress import findings as _findings
 from wallstress.errors import OutputError
 from wallstress.write import safety
-
-# moved to modules of their own; re-exported so that ``from wallstress.writers import ...`` keeps working
 from wallstress.write.flat import (
     _write_flat,
 )
@@ -85,7 +80,7 @@ def write_results(
 
     Parameters
     ----------
-    analysis : wallstress.result.Analysis
+    analysis : wallstress.analysis.result.Analysis
         What the run produced; ``analysis.table`` is written as the results.
     out_path : path-like or None
         Output file; its suffix chooses the format (``.xlsx``, ``.csv``, ``.parquet``). May be None,

@@ -19,6 +19,7 @@ from pathlib import Path
 
 from wallstress.errors import OutputError
 from wallstress.schema.fields import FIELDS, Field
+from wallstress.schema.vocabulary import CLINICAL_CAUTION
 from wallstress.write import safety
 
 # Readable headers; each normalises (schema.normalise_header) to an alias of its field.
@@ -80,8 +81,7 @@ NOTES: tuple[str, ...] = (
     "for that unit are refused by the sheet (the commonest sign of a unit or typing error).",
     "Sex: F or M. Study date: a date (shown as yyyy-mm-dd). Optional columns may stay empty.",
     "Use pseudonymous patient IDs: no names or other direct identifiers in this file.",
-    "wallstress supports, and never replaces, a qualified clinician's judgement and the local "
-    "laboratory's protocols and reference values.",
+    CLINICAL_CAUTION,
 )
 
 _FIRST_DATE = datetime(1960, 1, 1)

@@ -22,14 +22,9 @@ import pytest
 from openpyxl import Workbook, load_workbook
 
 from wallstress.errors import OutputError
-from wallstress.write.xlsx.splice import (
-    EXCEL_MAX_TEXT,
-    SheetSpec,
-    SpliceError,
-    new_workbook,
-    splice_sheets,
-    valid_sheet_name,
-)
+from wallstress.write.xlsx.registries import SpliceError
+from wallstress.write.xlsx.sheet_xml import EXCEL_MAX_TEXT, SheetSpec
+from wallstress.write.xlsx.splice import new_workbook, splice_sheets, valid_sheet_name
 
 REGISTRIES = {
     "[Content_Types].xml",

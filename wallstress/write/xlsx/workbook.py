@@ -1,6 +1,6 @@
 """xlsx outputs: a copy of the user's workbook with our sheets added, a new workbook, or in place.
 
-A copy is spliced, not re-saved (``xlsx_splice``): every part of the user's package (sheets,
+A copy is spliced, not re-saved (:mod:`~wallstress.write.xlsx.splice`): every part of the user's package (sheets,
 formulas, comments, styles, defined names, drawings, charts, pivot tables, extensions) is copied
 byte for byte and only the sheet registries and the style list gain entries for our sheets. A
 package that cannot be spliced safely (macro-enabled, strict OOXML, encrypted) gets a separate
@@ -8,8 +8,8 @@ workbook holding our sheets instead. ``in_place`` writes into the user's workboo
 verified backup. Cells of ours hold text as inline text (never a formula, error value or link), with
 units in the headers and display formats by unit.
 
-The size limits (``splice.EXCEL_MAX_ROWS``, ``splice.EXCEL_MAX_COLUMNS``, ``EXCEL_MAX_TEXT``) are public constants of
-:mod:`wallstress.writers` and are read from there when a sheet is written.
+The size limits (``EXCEL_MAX_ROWS``, ``EXCEL_MAX_COLUMNS``, ``EXCEL_MAX_TEXT``) are public constants of
+:mod:`wallstress.write.xlsx.sheet_xml`, read from there when a sheet is written.
 """
 
 from __future__ import annotations
@@ -25,7 +25,7 @@ from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.write import safety
 from wallstress.write.methods_sheet import methods_rows
 from wallstress.write.parts import WriteReport, _Part
-from wallstress.write.xlsx import splice
+from wallstress.write.xlsx import registries, sheet_xml, splice
 
 _INVALID_SHEET_CHARS = re.compile(r"[\[\]\*\?/\\:]")
 
@@ -69,7 +69,7 @@ def _write_xlsx(out, parts, methods, source, src_path, methods_sheet) -> WriteRe
             _save_workbook_copy(src_path, out, parts, methods, source, methods_sheet, report)
             report.append(out)
             return report
-        except splice.SpliceError as exc:
+        except registries.SpliceError as exc:
             report.notes.append(_separate_note(exc, src_path.name, out.name))
     _save_new_workbook(out, parts, methods, source, methods_sheet, report)
     report.append(out)
@@ -136,7 +136,7 @@ def _write_in_place(out_path, parts, methods, source, src_path, methods_sheet) -
             report,
             before_commit=before_commit,
         )
-    except splice.SpliceError as exc:
+    except registries.SpliceError as exc:
         backup.unlink(missing_ok=True)
         report.backup = None
         report.notes.clear()
@@ -172,12 +172,12 @@ def _sheet_specs(parts, methods, source, out, report) -> dict:
                 if fmt and pd.api.types.is_float_dtype(dtype):
                     formats[h] = fmt
         renamed = frame.set_axis(headers, axis=1) if headers != columns else frame
-        specs[part.sheet] = splice.SheetSpec(renamed, number_formats=formats)
+        specs[part.sheet] = sheet_xml.SheetSpec(renamed, number_formats=formats)
 
     def methods_frame(notes):
         return methods_rows(methods, source, notes=[*report.notes, *notes], outputs=[out])
 
-    specs["\0methods"] = splice.SheetSpec(methods_frame, widths=(28, 110))
+    specs["\0methods"] = sheet_xml.SheetSpec(methods_frame, widths=(28, 110))
     return specs
 
 
@@ -214,10 +214,10 @@ def _save_workbook_copy(
 def _check_excel_size(parts) -> None:
     for part in parts:
         n_rows, n_cols = part.frame.shape
-        if n_rows + 1 > splice.EXCEL_MAX_ROWS or n_cols > splice.EXCEL_MAX_COLUMNS:
+        if n_rows + 1 > sheet_xml.EXCEL_MAX_ROWS or n_cols > sheet_xml.EXCEL_MAX_COLUMNS:
             raise OutputError(
                 f"the table for sheet {part.sheet!r} has {n_rows} rows and {n_cols} columns, more than "
-                f"an xlsx sheet holds ({splice.EXCEL_MAX_ROWS - 1} rows, {splice.EXCEL_MAX_COLUMNS} columns); "
+                f"an xlsx sheet holds ({sheet_xml.EXCEL_MAX_ROWS - 1} rows, {sheet_xml.EXCEL_MAX_COLUMNS} columns); "
                 "write to a .csv or .parquet output instead"
             )
 
@@ -242,11 +242,11 @@ def check_fits_xlsx(n_rows: int, n_cols: int, out=None) -> None:
         the message says to write .csv or .parquet instead.
     """
     total = int(n_cols) + len(OUTPUT_COLUMNS)
-    if int(n_rows) + 1 > splice.EXCEL_MAX_ROWS or total > splice.EXCEL_MAX_COLUMNS:
+    if int(n_rows) + 1 > sheet_xml.EXCEL_MAX_ROWS or total > sheet_xml.EXCEL_MAX_COLUMNS:
         where = f"{out}: " if out is not None else ""
         raise OutputError(
             f"{where}the results would be {n_rows} rows x {total} columns ({n_cols} of the study "
             f"list, {len(OUTPUT_COLUMNS)} of results), more than an xlsx sheet holds "
-            f"({splice.EXCEL_MAX_ROWS - 1} rows, {splice.EXCEL_MAX_COLUMNS} columns); write to a .csv or "
+            f"({sheet_xml.EXCEL_MAX_ROWS - 1} rows, {sheet_xml.EXCEL_MAX_COLUMNS} columns); write to a .csv or "
             ".parquet output instead (-o results.csv)"
         )
