@@ -34,6 +34,7 @@ from wallstress.options import Options
 from wallstress.read.chunks import _at_least_one, _csv_chunks, _input_kind, _parquet_chunks
 from wallstress.read.guards import check_regular_file
 from wallstress.write import safety
+from wallstress.write.results import planned_outputs, results_keys
 from wallstress.write.streams import CHUNK_OUTPUT_SUFFIXES, _Sink
 
 DEFAULT_CHUNK_ROWS = 200_000
@@ -143,13 +144,36 @@ def analyse_chunked(
             f"chunked output {out.name!r}: use a name ending in {' or '.join(CHUNK_OUTPUT_SUFFIXES)} "
             "(an xlsx sheet cannot hold a registry; for small lists run without chunking)"
         )
-    findings_out = out.with_name(f"{out.stem}.findings{suffix}")
-    methods_out = out.with_name(f"{out.stem}.methods.json")
-    for target in (out, findings_out, methods_out):
-        if safety.same_file(target, src):
-            raise OutputError(
-                f"writing {str(target)!r} would overwrite your input; choose another -o"
-            )
+    out, findings_out, methods_out = safety.check_outputs(
+        planned_outputs(out, results_keys()), [src]
+    )
+    with safety.protected_inputs(src):
+        return _run(
+            src,
+            kind,
+            out,
+            findings_out,
+            methods_out,
+            suffix,
+            options,
+            chunk_rows,
+            progress,
+            escape_formulas,
+        )
+
+
+def _run(
+    src,
+    kind,
+    out,
+    findings_out,
+    methods_out,
+    suffix,
+    options,
+    chunk_rows,
+    progress,
+    escape_formulas,
+):
 
     digest = safety.sha256_file(src)
     if kind == "csv":
@@ -164,8 +188,8 @@ def analyse_chunked(
     with safety.atomic_files() as batch, contextlib.ExitStack() as stack:
         sink.open(batch, stack)
         done = 0
-        for raw, cells in _at_least_one(chunks, source, options.columns):
-            result, row_findings = state.analyse(raw, cells, offset=done)
+        for raw, cells, numbers in _at_least_one(chunks, source, options.columns):
+            result, row_findings = state.analyse(raw, cells, numbers, offset=done)
             sink.write(result, row_findings, offset=done)
             done += len(raw)
             if progress is not None:
@@ -247,10 +271,12 @@ class _RunState:
         cols = ["code", "column", "field", "message"]
         return set(map(tuple, frame[cols].astype(str).to_numpy().tolist())) if len(frame) else set()
 
-    def analyse(self, raw: pd.DataFrame, cells: pd.DataFrame, *, offset: int):
+    def analyse(self, raw: pd.DataFrame, cells: pd.DataFrame, numbers: dict, *, offset: int):
         cols = list(raw.columns)
         frame = raw.rename(columns=self.pin) if self.pin else raw
-        a = analyse_with_findings(frame, self.options, prior_findings=cells)
+        if self.pin:
+            numbers = {self.pin.get(k, k): v for k, v in numbers.items()}
+        a = analyse_with_findings(frame, self.options, prior_findings=cells, numbers=numbers)
         table = a.table
         if self.pin:
             table.columns = cols + list(table.columns[len(cols) :])

@@ -6,6 +6,7 @@ and what to do); 2 usage; 3 with --strict when any row has an error finding.
 
 from __future__ import annotations
 
+import errno
 import sys
 import traceback
 from enum import Enum
@@ -29,6 +30,7 @@ from wallstress.options import Options
 from wallstress.schema.units import UNIT_CHOICES
 from wallstress.schema.vocabulary import CLINICAL_CAUTION, METHOD_CHOICES
 from wallstress.tracking.visits import SAME_DAY_RULES
+from wallstress.write.safety import protected_inputs
 from wallstress.write.template import write_template
 
 DEFAULTS = Options()
@@ -60,36 +62,59 @@ Units = _choices("Units", UNIT_CHOICES)
 SameDay = _choices("SameDay", SAME_DAY_RULES)
 
 
-def _fail(exc: BaseException) -> None:
+def _one_line(text: str) -> str:
+    """A message on one line: line breaks (a file name may hold one) shown as \\n, not cut."""
+    return str(text).strip().replace("\r", "\\r").replace("\n", "\\n")
+
+
+def _say(message: str, code: int) -> None:
     if _state["debug"]:
         traceback.print_exc()
-    message = str(exc).strip().splitlines()[0] if str(exc).strip() else exc.__class__.__name__
-    typer.echo(f"wallstress: {message}", err=True)
-    raise typer.Exit(getattr(exc, "exit_code", EXIT_INPUT))
+    typer.echo(f"wallstress: {_one_line(message)}", err=True)
+    raise typer.Exit(code)
 
 
-def _guard(fn, *args, **kwargs):
+def _os_message(exc: OSError) -> str:
+    """What went wrong with a file, in words, and what to do."""
+    where = f" ({exc.filename})" if exc.filename else ""
+    if exc.errno == errno.ENOSPC:
+        return f"the disk is full{where}; free some space or write elsewhere with -o (nothing was written)"
+    if exc.errno in (errno.EACCES, errno.EPERM, errno.EROFS):
+        return f"not allowed to write or read{where}; check the folder's permissions or choose another -o"
+    if exc.errno == errno.EISDIR:
+        return f"a folder was given where a file is needed{where}; give a file name"
+    if exc.errno == errno.ENAMETOOLONG:
+        return f"a file name is too long{where}; choose a shorter one"
+    return f"{exc.strerror or exc.__class__.__name__}{where}"
+
+
+def _guard(fn, *args, inputs=(), **kwargs):
+    """Run a job; every failure becomes one line on stderr and an exit code (never a traceback).
+
+    ``inputs`` are further files the command reads (a ``--columns`` map, a set CSV): no output may
+    be written over them."""
     try:
-        return fn(*args, **kwargs)
+        with protected_inputs(*inputs):
+            return fn(*args, **kwargs)
     except WallstressError as exc:
-        _fail(exc)
+        _say(str(exc) or exc.__class__.__name__, getattr(exc, "exit_code", EXIT_INPUT))
     except ValueError as exc:  # a wrong option value that slipped past typer
-        if _state["debug"]:
-            traceback.print_exc()
-        typer.echo(f"wallstress: {exc}", err=True)
-        raise typer.Exit(2) from None
+        _say(str(exc), 2)
     except KeyboardInterrupt:
-        typer.echo("wallstress: interrupted; no partial output was left", err=True)
-        raise typer.Exit(130) from None
-    except Exception as exc:  # never a bare traceback for a user's file
-        if _state["debug"]:
-            traceback.print_exc()
-        typer.echo(
-            f"wallstress: unexpected problem ({exc.__class__.__name__}: {exc}); run again with --debug "
-            "and report it with the traceback",
-            err=True,
+        _say("interrupted; no partial output was left", 130)
+    except MemoryError:
+        _say(
+            "not enough memory for this file; for a large CSV or parquet use --chunk-rows 200000",
+            EXIT_INPUT,
         )
-        raise typer.Exit(EXIT_INPUT) from None
+    except OSError as exc:
+        _say(_os_message(exc), EXIT_INPUT)
+    except Exception as exc:  # never a bare traceback for a user's file
+        _say(
+            f"unexpected problem ({exc.__class__.__name__}: {exc}); run again with --debug and "
+            "report it with the traceback",
+            EXIT_INPUT,
+        )
 
 
 def _options(
@@ -151,6 +176,11 @@ SHEET = typer.Option(
 COLUMNS = typer.Option(
     None, "--columns", help="Your headers -> our fields: CSV 'header,field' or JSON."
 )
+ESCAPE = typer.Option(
+    False,
+    "--escape-formulas",
+    help="In CSV output, prefix formula-like text (cells and headers) with a quote.",
+)
 QUIET = typer.Option(False, "--quiet", "-q", help="No progress or summary on the terminal.")
 
 
@@ -186,9 +216,7 @@ def analyse(
     strict: bool = typer.Option(
         False, "--strict", help="Exit 3 when any row has an error finding."
     ),
-    escape_formulas: bool = typer.Option(
-        False, "--escape-formulas", help="In CSV output, prefix formula-like text with a quote."
-    ),
+    escape_formulas: bool = ESCAPE,
     chunk_rows: int = typer.Option(
         None,
         "--chunk-rows",
@@ -214,6 +242,7 @@ def analyse(
         in_place=in_place,
         escape_formulas=escape_formulas,
         quiet=quiet,
+        inputs=(columns,),
     )
     _summarise(result.analysis.methods["counts"], result.notes, result.written, quiet, strict)
 
@@ -273,6 +302,7 @@ def track(
     same_day: SameDay = typer.Option(
         SameDay(SAME_DAY_RULES[0]), "--same-day", help="Studies of one patient on one day."
     ),
+    escape_formulas: bool = ESCAPE,
     units: Units = UNITS,
     sheet: str = SHEET,
     columns: Path = COLUMNS,
@@ -282,7 +312,14 @@ def track(
 
     options = _guard(_options, reference, units, sheet, columns)
     result = _guard(
-        track_file, studies, out, options, within_subject_sd_g=within_sd, same_day=same_day.value
+        track_file,
+        studies,
+        out,
+        options,
+        within_subject_sd_g=within_sd,
+        same_day=same_day.value,
+        escape_formulas=escape_formulas,
+        inputs=(columns,),
     )
     if not quiet:
         for line in result.notes:
@@ -307,7 +344,7 @@ def report(
     """Pictures and per-patient pages in one HTML file that works offline."""
 
     options = _guard(_options, reference, units, sheet, columns)
-    path = _guard(report_file, studies, out, options, figures_dir=figures)
+    path = _guard(report_file, studies, out, options, figures_dir=figures, inputs=(columns,))
     if not quiet:
         typer.echo(f"wrote {path}")
 
@@ -374,7 +411,13 @@ def calibrate(
 
     options = _guard(_options, base, units, sheet, columns)
     result = _guard(
-        calibrate_file, normals, out, options, min_per_sex=min_per_sex, allow_small=allow_small
+        calibrate_file,
+        normals,
+        out,
+        options,
+        min_per_sex=min_per_sex,
+        allow_small=allow_small,
+        inputs=(columns,),
     )
     for line in result.notes:
         typer.echo(line)

@@ -1,4 +1,9 @@
-"""File-level jobs: read -> analyse / track -> write. Each returns data; the CLI only prints."""
+"""File-level jobs: read -> analyse / track -> write. Each returns data; the CLI only prints.
+
+The follow-up, report and calibration stages are imported by the jobs that use them: their
+dependencies (scipy, matplotlib) would otherwise add about 100 MiB and a second to every run of
+``analyse``.
+"""
 
 from __future__ import annotations
 
@@ -11,16 +16,19 @@ import pandas as pd
 from wallstress.analysis.pipeline import analyse_with_findings
 from wallstress.analysis.result import Analysis
 from wallstress.bundled import data_dir
-from wallstress.calibration.fit import calibrate
-from wallstress.calibration.set_writer import write_set
 from wallstress.errors import InputError, OutputError
 from wallstress.options import Options
 from wallstress.progress import Progress
 from wallstress.read.studies import read_studies
-from wallstress.report.page import write_report
 from wallstress.schema.vocabulary import CLINICAL_CAUTION
-from wallstress.tracking.track import track, tracking_sheets
-from wallstress.write.results import write_results, write_sheets
+from wallstress.write.results import (
+    planned_outputs,
+    results_keys,
+    sheet_keys,
+    write_results,
+    write_sheets,
+)
+from wallstress.write.safety import check_outputs, protected_inputs, same_file
 from wallstress.write.xlsx.workbook import check_fits_xlsx
 
 
@@ -88,17 +96,24 @@ def analyse_file(
     out_path = Path(out) if out else default_output(path)
     if in_place:
         out_path = path
-    elif out_path.resolve() == path.resolve():
+    elif same_file(out_path, path):
         raise OutputError(
             f"{out_path}: this would overwrite your input; choose another -o or pass --in-place"
         )
+    else:
+        check_outputs(planned_outputs(out_path, results_keys()), [path])
 
-    with Progress(4, enabled=None if not quiet else False) as bar:
+    with (
+        protected_inputs(*([] if in_place else [path]), *reference_files(options)),
+        Progress(4, enabled=None if not quiet else False) as bar,
+    ):
         study = read_studies(path, sheet=options.sheet, columns=options.columns)
         if out_path.suffix.lower() in (".xlsx", ".xlsm"):
             check_fits_xlsx(*study.table.shape, out_path)  # refuse before computing, not after
         bar.step(f"read {len(study.table)} rows")
-        analysis = analyse_with_findings(study.table, options, prior_findings=study.findings)
+        analysis = analyse_with_findings(
+            study.table, options, prior_findings=study.findings, numbers=study.numbers
+        )
         _source_methods(analysis, study)
         bar.step("measures computed")
         written = write_results(
@@ -109,6 +124,12 @@ def analyse_file(
     paths = list(getattr(written, "paths", written))
     bar.step("done")
     return JobResult(analysis, paths, notes)
+
+
+def reference_files(options: Options) -> list[Path]:
+    """The lab's own reference-set file, when ``options.reference`` names one (an input too)."""
+    ref = Path(options.reference)
+    return [ref] if ref.suffix.lower() == ".csv" and ref.is_file() else []
 
 
 def default_output(path: Path) -> Path:
@@ -125,7 +146,9 @@ def with_options(options: Options, **changes) -> Options:
 
 def _read_and_analyse(path, options: Options):
     study = read_studies(Path(path), sheet=options.sheet, columns=options.columns)
-    analysis = analyse_with_findings(study.table, options, prior_findings=study.findings)
+    analysis = analyse_with_findings(
+        study.table, options, prior_findings=study.findings, numbers=study.numbers
+    )
     _source_methods(analysis, study)
     return study, analysis
 
@@ -137,22 +160,31 @@ def track_file(
     *,
     within_subject_sd_g: float | None = None,
     same_day: str = "mean",
+    escape_formulas: bool = False,
 ) -> JobResult:
     """Follow-up of a clinic cohort: patients, visits, transitions and methods, written to ``out``."""
 
+    from wallstress.tracking.track import SHEETS as TRACKING_SHEETS
+    from wallstress.tracking.track import track, tracking_sheets
+
     options = options or Options()
     path, out = Path(path), Path(out)
-    if out.resolve() == path.resolve():
-        raise OutputError(f"{out}: this would overwrite your input; choose another -o")
-    _, analysis = _read_and_analyse(path, options)
-    tracking = track(analysis, options, within_subject_sd_g=within_subject_sd_g, same_day=same_day)
-    methods = {**analysis.methods, "tracking": tracking.methods}
-    written = write_sheets(out, tracking_sheets(tracking), methods)
+    check_outputs(planned_outputs(out, sheet_keys(TRACKING_SHEETS)), [path])
+    with protected_inputs(path, *reference_files(options)):
+        _, analysis = _read_and_analyse(path, options)
+        tracking = track(
+            analysis, options, within_subject_sd_g=within_subject_sd_g, same_day=same_day
+        )
+        methods = {**analysis.methods, "tracking": tracking.methods}
+        written = write_sheets(
+            out, tracking_sheets(tracking), methods, escape_formulas=escape_formulas
+        )
     p = tracking.patients
     notes = [f"{len(p)} patients, {len(tracking.visits)} visits"]
     if "verdict" in p.columns:
         for verdict, count in p["verdict"].value_counts().items():
             notes.append(f"  {verdict}: {count}")
+    notes += [f"note: {n}" for n in getattr(written, "notes", [])]
     return JobResult(analysis, list(getattr(written, "paths", written)), notes)
 
 
@@ -161,13 +193,23 @@ def report_file(
 ) -> Path:
     """One self-contained HTML report; per-patient pages when patients have several studies."""
 
+    from wallstress.report.page import write_report
+    from wallstress.tracking.track import track
+
     options = options or Options()
-    _, analysis = _read_and_analyse(path, options)
-    tracking = None
-    frame = analysis.canonical
-    if "patient_id" in frame.columns and frame["patient_id"].duplicated().any():
-        tracking = track(analysis, options)
-    return write_report(analysis, Path(out), tracking=tracking, figures_dir=figures_dir)
+    out = Path(out)
+    check_outputs([out], [path])
+    if figures_dir is not None and Path(figures_dir).exists() and not Path(figures_dir).is_dir():
+        raise OutputError(
+            f"--figures {figures_dir} is a file; give a folder for the figures (it is created)"
+        )
+    with protected_inputs(Path(path), *reference_files(options)):
+        _, analysis = _read_and_analyse(path, options)
+        tracking = None
+        frame = analysis.canonical
+        if "patient_id" in frame.columns and frame["patient_id"].duplicated().any():
+            tracking = track(analysis, options)
+        return write_report(analysis, out, tracking=tracking, figures_dir=figures_dir)
 
 
 def calibrate_file(
@@ -181,6 +223,15 @@ def calibrate_file(
     """A lab's own reference set from its healthy subjects."""
 
     options = options or Options()
+    check_outputs([Path(out)], [path])
+    with protected_inputs(Path(path), *reference_files(options)):
+        return _calibrate(path, out, options, min_per_sex, allow_small)
+
+
+def _calibrate(path, out, options, min_per_sex, allow_small) -> JobResult:
+    from wallstress.calibration.fit import calibrate
+    from wallstress.calibration.set_writer import write_set
+
     _, analysis = _read_and_analyse(path, options)
     cal = calibrate(
         analysis,
@@ -234,6 +285,9 @@ def run_demo(folder: str | Path = "wallstress-demo") -> JobResult:
         samples / "fernhill_echo_lab.xlsx", folder / "fernhill_echo_lab.report.html"
     )
     notes.append(f"report: {lab_rep.name}")
+    from wallstress.calibration.fit import calibrate
+    from wallstress.calibration.set_writer import write_set
+
     try:
         _, normals = _read_and_analyse(samples / "fernhill_normals.csv", Options())
         cal = calibrate(

@@ -399,3 +399,13 @@ def test_placeholder_date_outside_datetime_range_is_a_finding_not_a_stop():
     assert m.canonical["study_date"].isna().tolist() == [True, False, True, True]
     f = m.findings
     assert set(f.loc[f["code"] == "date_unreadable", "row"]) == {0, 2, 3}
+
+
+def test_serial_date_beyond_nanosecond_range_is_unread():
+    """Serial 132321 is 2262-04-12 in the 1900 date system (ECMA-376 Part 1, 18.17.4), beyond what
+    datetime64[ns] holds (numpy: to 2262-04-11): a finding on its row, not a crash (found by the
+    fuzz test above)."""
+    m = map_columns(pd.DataFrame({"date": [132321.0, 45000.0]}))
+    assert pd.isna(m.canonical["study_date"].iloc[0])
+    assert m.canonical["study_date"].iloc[1] == pd.Timestamp("2023-03-15")
+    assert "date_unreadable" in set(m.findings.loc[m.findings["row"] == 0, "code"])

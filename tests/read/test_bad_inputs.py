@@ -66,7 +66,8 @@ def test_error_text_in_csv_becomes_nan(tmp_path):
     """'#N/A' written as text in a CSV is a spreadsheet error value: NaN plus a row finding."""
     st = read_studies(bad_inputs.error_text_csv(tmp_path))
     assert pd.isna(st.table.loc[0, "IVSd (mm)"])
-    assert st.table.loc[1, "IVSd (mm)"] == 11
+    assert st.table.loc[1, "IVSd (mm)"] == "11"  # the cell as written
+    assert st.numbers["IVSd (mm)"][1] == 11  # the computation's parsed copy
     f = st.findings[st.findings["code"] == "spreadsheet_error"]
     assert list(f["row"]) == [0]
 
@@ -270,13 +271,15 @@ def test_huge_csv_cell_kept(tmp_path):
 
 
 def test_wide_csv_reads_every_column(tmp_path):
-    """50 rows x 20,004 columns: every column named and numeric columns read as float64 (RFC 4180;
-    the header row longer than any fixed sample). Speed is measured in benchmarks, not here."""
+    """50 rows x 20,004 columns: every column named, cells kept as written and numeric columns
+    parsed as float64 (RFC 4180; the header row longer than any fixed sample). Speed is measured
+    in benchmarks, not here."""
     st = read_studies(bad_inputs.wide_csv(tmp_path))
     assert st.table.shape == (50, 20_004)
     assert st.table.columns[0] == "study_id" and st.table.columns[-1] == "extra_19999"
-    assert st.table["extra_19999"].dtype == np.float64
-    assert st.table["extra_19999"].iloc[0] == 19_999 % 97
+    assert st.table["extra_19999"].iloc[0] == str(19_999 % 97)
+    assert st.numbers["extra_19999"].dtype == np.float64
+    assert st.numbers["extra_19999"][0] == 19_999 % 97
 
 
 def test_check_fits_xlsx():

@@ -57,7 +57,8 @@ def test_other_delimiters(tmp_path, sep):
     """Tab, pipe and comma delimiters are detected (RFC 4180 and its common dialects)."""
     st = read_studies(_plain_csv(tmp_path / "d.csv", sep=sep))
     assert st.delimiter == sep
-    assert st.table["lvidd_cm"].tolist() == [4.7, 5.2, 4.45]
+    assert st.table["lvidd_cm"].tolist() == ["4.7", "5.2", "4.45"]  # as written
+    assert st.numbers["lvidd_cm"].tolist() == [4.7, 5.2, 4.45]
 
 
 def test_detect_delimiter_prefers_semicolon_over_decimal_comma():
@@ -83,7 +84,7 @@ def test_utf8_bom_and_utf16(tmp_path):
     st = read_studies(_plain_csv(tmp_path / "bom.csv", encoding="utf-8-sig"))
     assert st.encoding == "utf-8-sig" and st.table.columns[0] == "study_id"
     st = read_studies(_plain_csv(tmp_path / "u16.csv", sep="\t", encoding="utf-16"))
-    assert st.encoding == "utf-16" and st.table["height_cm"].tolist()[0] == 162.0
+    assert st.encoding == "utf-16" and st.numbers["height_cm"].tolist()[0] == 162.0
     st = read_studies(_plain_csv(tmp_path / "u8.csv"))
     assert st.encoding == "utf-8" and not len(st.findings)
 
@@ -261,7 +262,7 @@ def test_columns_option_counts_for_header(tmp_path):
         read_studies(p)
     cols = {"Septum": "ivsd_cm", "Cavity": "lvidd_cm", "Back wall": "pwd_cm"}
     st = read_studies(p, columns=cols)
-    assert st.header_row == 0 and st.table.loc[0, "Cavity"] == 4.8
+    assert st.header_row == 0 and st.numbers["Cavity"][0] == 4.8
 
 
 def test_header_only_returns_zero_rows(tmp_path):
@@ -279,7 +280,7 @@ def test_numbers_padded_or_not_read_alike(tmp_path):
     for i, text in enumerate((plain, padded)):
         p = tmp_path / f"s{i}.csv"
         p.write_text(text, encoding="utf-8")
-        got.append(read_studies(p).table)
+        got.append(read_studies(p).numbers)
     for t in got:
         assert t["LVIDd"].tolist() == [float("4.8"), float("5.2")]
         assert t["PWd"].tolist() == [float("0.9"), float("1e-3")]

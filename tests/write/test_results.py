@@ -35,7 +35,7 @@ from wallstress.write.results import write_results, write_sheets
 from wallstress.write.xlsx import sheet_xml
 from wallstress.write.xlsx import splice as xlsx_splice
 
-FORMULA_TEXT = ['=HYPERLINK("http://x")', "+1", "@SUM(A1)", "http://example.org", "#N/A"]
+FORMULA_TEXT = ['=HYPERLINK("http://x")', "+A1", "@SUM(A1)", "http://example.org", "#N/A"]
 
 
 @dataclass
@@ -77,7 +77,7 @@ def make_analysis(n_extra: int = 0) -> Analysis:
             F.make([2], code="lvidd_missing", severity="error", message="LVIDd is missing.",
                    column="LVIDd (cm)", field="lvidd_cm"),
             F.make([1], code="odd_note", severity="note", message="echo of the user text",
-                   column="comment", values=["+1"]),
+                   column="comment", values=["+A1"]),
         ]
     )  # fmt: skip
     methods = {
@@ -190,7 +190,7 @@ def test_csv_escape_formulas_prefixes_single_quote(tmp_path):
     write_results(make_analysis(), tmp_path / "r.csv", escape_formulas=True)
     back = pd.read_csv(tmp_path / "r.csv", keep_default_na=False)
     assert back["comment"].tolist() == [
-        '\'=HYPERLINK("http://x")', "'+1", "'@SUM(A1)", "http://example.org", "#N/A",
+        '\'=HYPERLINK("http://x")', "'+A1", "'@SUM(A1)", "http://example.org", "#N/A",
     ]  # fmt: skip
     assert back["lv_mass_g"].iloc[4] == "-0.0"  # a negative number is not text: not quoted
 
@@ -321,7 +321,7 @@ def test_xlsx_text_stays_text_in_new_workbook(tmp_path):
     assert back["comment"].tolist() == FORMULA_TEXT
     findings_ws = wb["wallstress findings"]
     values = [c.value for c in findings_ws["D"]]
-    assert "+1" in values
+    assert "+A1" in values
 
 
 def test_xlsx_methods_sheet(tmp_path):

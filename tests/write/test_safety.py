@@ -19,7 +19,7 @@ from openpyxl.comments import Comment
 
 from wallstress.errors import OutputError
 from wallstress.findings import FINDING_COLUMNS
-from wallstress.write import safety
+from wallstress.write import formula_text, safety
 
 
 def _leftovers(folder):
@@ -169,39 +169,44 @@ def test_backup_copy_is_byte_identical_and_named(tmp_path):
 
 def test_formula_like_prefixes_vs_csv_injection_list():
     """Triggers = + - @, tab and CR (OWASP "CSV Injection" page; from memory)."""
-    assert set(safety.FORMULA_PREFIXES) == {"=", "+", "-", "@", "\t", "\r"}
+    assert set(formula_text.FORMULA_PREFIXES) == {"=", "+", "-", "@", "\t", "\r"}
     col = pd.Series(
-        ['=HYPERLINK("http://x")', "+1", "@SUM(A1)", "-2+3", "\tcmd", "\rx", "ok", "a=b", None, 5],
+        ['=HYPERLINK("http://x")', "+A1", "@SUM(A1)", "-2+3", "\tcmd", "\rx", "ok", "a=b", None, 5],
         dtype=object,
     )
-    assert safety.formula_like_mask(col).tolist() == [
+    assert formula_text.formula_like_mask(col).tolist() == [
         True, True, True, True, True, True, False, False, False, False,
     ]  # fmt: skip
 
 
 def test_formula_like_numbers_and_dates_never_flagged():
-    """Negative numbers are numbers, not text (common practice, no source)."""
-    assert not safety.formula_like_mask(pd.Series([-1.5, np.nan, 3.0])).any()
-    assert not safety.formula_like_mask(pd.Series([-1, 2])).any()
-    assert not safety.formula_like_mask(pd.to_datetime(pd.Series(["2020-01-01", None]))).any()
-    assert not safety.formula_like_mask(pd.Series([np.nan, None], dtype=object)).any()
-    assert safety.formula_like_mask(pd.Series(["=1"], dtype="string")).all()
+    """Negative numbers are numbers, not text, and a number written as text ("-3", "+4.5", "-1e3")
+    is read by a spreadsheet program as that number, never run (common practice, no source)."""
+    text_numbers = pd.Series(["-3", "+4.5", "-1e3", " -0.5 ", "-2+3", "+A1"], dtype=object)
+    assert formula_text.formula_like_mask(text_numbers).tolist() == [
+        False, False, False, False, True, True,
+    ]  # fmt: skip
+    assert not formula_text.formula_like_mask(pd.Series([-1.5, np.nan, 3.0])).any()
+    assert not formula_text.formula_like_mask(pd.Series([-1, 2])).any()
+    assert not formula_text.formula_like_mask(pd.to_datetime(pd.Series(["2020-01-01", None]))).any()
+    assert not formula_text.formula_like_mask(pd.Series([np.nan, None], dtype=object)).any()
+    assert formula_text.formula_like_mask(pd.Series(["=1"], dtype="string")).all()
 
 
 def test_formula_like_findings_table():
     table = pd.DataFrame({"note": ["fine", "=1+1", "@x"], "lv_mass_g": [-1.0, 2.0, 3.0]})
-    f = safety.formula_like_findings(table)
+    f = formula_text.formula_like_findings(table)
     assert list(f.columns) == list(FINDING_COLUMNS)
     assert f["row"].tolist() == [1, 2]
     assert set(f["code"]) == {"formula_like_text"} and set(f["severity"]) == {"warning"}
     assert f["column"].tolist() == ["note", "note"] and f["value"].tolist() == ["=1+1", "@x"]
-    assert safety.formula_like_findings(table[["lv_mass_g"]]).empty
+    assert formula_text.formula_like_findings(table[["lv_mass_g"]]).empty
 
 
 def test_escape_formula_text_quotes_only_text():
     table = pd.DataFrame({"note": ["=1+1", "ok", None], "x": [-1.0, np.nan, 2.0]})
     before = table.copy()
-    out = safety.escape_formula_text(table)
+    out = formula_text.escape_formula_text(table)
     assert out["note"].tolist()[:2] == ["'=1+1", "ok"] and pd.isna(out["note"].iloc[2])
     assert out["note"].dtype == table["note"].dtype
     assert out["x"].tolist()[0] == -1.0
@@ -212,7 +217,7 @@ def test_hyperlink_like_mask():
     col = pd.Series(
         ["http://x.org", "see www.x.org", "www.x.org", "mailto:a@b", r"\\srv\share", "ok"]
     )
-    assert safety.hyperlink_like_mask(col).tolist() == [True, False, True, True, True, False]
+    assert formula_text.hyperlink_like_mask(col).tolist() == [True, False, True, True, True, False]
 
 
 # ---------------------------------------------------------------------------------------- parts

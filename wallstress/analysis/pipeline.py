@@ -70,16 +70,22 @@ def analyse(df: pd.DataFrame, options: Options | None = None) -> pd.DataFrame:
 
 
 def analyse_with_findings(
-    df: pd.DataFrame, options: Options | None = None, *, prior_findings: pd.DataFrame | None = None
+    df: pd.DataFrame,
+    options: Options | None = None,
+    *,
+    prior_findings: pd.DataFrame | None = None,
+    numbers: dict | None = None,
 ) -> Analysis:
     """Like :func:`analyse`, returning the whole :class:`~wallstress.analysis.result.Analysis`.
 
     ``prior_findings`` (e.g. from the reader: error values in cells) join the row flags.
+    ``numbers`` (header -> float64, ``StudyTable.numbers``) are the reader's parsed copies of text
+    columns of numbers: the computation reads them, ``df`` keeps the text.
     """
     options = options or Options()
     _check_options(options)
     refset = load_set(options.reference)
-    mapped = map_columns(df, options)
+    mapped = map_columns(df, options, numbers=numbers)
     labels = {m["field"]: m["source_column"] for m in mapped.mapping}
     canonical, vparts = validate_parts(mapped.canonical, labels)
     canonical.index = pd.RangeIndex(len(df))

@@ -7,7 +7,8 @@ from pathlib import Path
 from wallstress.analysis.references import SET_COLUMNS
 from wallstress.calibration.fit import Calibration
 from wallstress.errors import OutputError
-from wallstress.write.safety import atomic_path, escape_formula_text
+from wallstress.write.formula_text import escape_formula_text
+from wallstress.write.safety import atomic_path
 
 
 def write_set(calibration: Calibration, out_path) -> Path:

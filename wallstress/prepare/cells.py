@@ -295,6 +295,19 @@ def parse_sex(s: pd.Series) -> tuple[pd.Series, dict[str, np.ndarray]]:
     }
 
 
+_PLAIN_INTEGER = r"^-?(?:0|[1-9][0-9]*)$"
+
+
+def plain_integers(s: pd.Series) -> bool:
+    """True when every non-empty cell is an integer written plainly ("1001", "-3"; not "000123",
+    "+5", "1e3" or "1001.0"), so that the number and the text are the same identifier."""
+    text = _arrow_text(s)
+    if text is None:
+        text = pa.array(_as_text(s).to_numpy(dtype=object), type=pa.string(), from_pandas=True)
+    ok = pc.match_substring_regex(text, _PLAIN_INTEGER)
+    return bool(pc.all(pc.or_(ok, pc.is_null(ok))).as_py() is not False)
+
+
 def parse_ids(s: pd.Series) -> pd.Series:
     """Identifiers, exactly as written; NaN (or <NA>) for empty.
 

@@ -81,8 +81,12 @@ def parse_dates(s: pd.Series, *, today: pd.Timestamp | None = None) -> tuple[pd.
     return out, probs
 
 
+# serials of the days READABLE_YEARS holds (the 1900 system, from serial 61 = 1900-03-01)
+_SERIAL_END = (pd.Timestamp(f"{READABLE_YEARS[1] + 1}-01-01") - _SERIAL_ORIGIN).days
+
+
 def _from_serial(v: np.ndarray) -> tuple[pd.Series, np.ndarray]:
-    ok = np.isfinite(v) & (v >= 61) & (v < 2958466)
+    ok = np.isfinite(v) & (v >= 61) & (v < _SERIAL_END)
     res = pd.Series(pd.NaT, index=range(len(v)), dtype="datetime64[ns]")
     if ok.any():
         res[ok] = _SERIAL_ORIGIN + pd.to_timedelta(np.round(v[ok] * 86400.0), unit="s")

@@ -33,6 +33,7 @@ from wallstress.prepare.cells import (
     parse_ids,
     parse_numbers,
     parse_sex,
+    plain_integers,
 )
 from wallstress.prepare.dates import (
     parse_dates,
@@ -80,17 +81,23 @@ def _unit_name(header: str) -> str:
     return header if header else "the column"
 
 
-def map_columns(raw: pd.DataFrame, options: Options | None = None) -> Mapped:
+def map_columns(
+    raw: pd.DataFrame, options: Options | None = None, *, numbers: dict | None = None
+) -> Mapped:
     """Map the user's columns to canonical fields in internal units.
 
     Parameters
     ----------
     raw : DataFrame
-        Cells under the user's own headers, one row per study (``readers.StudyTable.table``).
+        Cells under the user's own headers, one row per study (``StudyTable.table``).
         Not modified.
     options : Options, optional
         ``columns`` (user header -> canonical field) and ``units`` ("auto", "mm", "cm": unit of the
         linear LV dimensions whose header states none).
+    numbers : dict, optional
+        Header -> float64: the reader's parsed copy of a text column of numbers
+        (``StudyTable.numbers``). Numbers and dates are read from it; identifiers only where every
+        text is an integer written plainly (``1001``, never ``000123``), so an id is never altered.
 
     Returns
     -------
@@ -139,6 +146,9 @@ def map_columns(raw: pd.DataFrame, options: Options | None = None) -> Mapped:
         taken[fname] = header
         fld = schema.BY_NAME[fname]
         s = raw.iloc[:, j].reset_index(drop=True)
+        parsed = (numbers or {}).get(col)
+        if parsed is not None and (fld.kind != "id" or plain_integers(s)):
+            s = pd.Series(parsed, copy=False, name=s.name)
         if fld.kind == "number":
             values, entry, fparts = _map_number(s, header, fld, how, options.units)
             canonical[fname] = values

@@ -20,8 +20,9 @@ import pandas as pd
 from wallstress import findings as fnd
 from wallstress.errors import InputError
 from wallstress.read import studies as readers
-from wallstress.read.delimited import _numbers_from_text
+from wallstress.read.delimited import number_columns
 from wallstress.read.grid import HEADER_SEARCH_ROWS, _blank_to_nan, _cell_findings, _unique_headers
+from wallstress.read.guards import check_text_lines
 from wallstress.schema.headers import header_score
 
 CHUNK_INPUT_FORMATS: tuple[str, ...] = ("csv", "parquet")
@@ -75,7 +76,11 @@ def _csv_chunks(p: Path, chunk_rows: int, columns: dict | None = None):
     with tempfile.TemporaryDirectory(prefix="wallstress-head-") as tmp:
         head_path = Path(tmp) / p.name
         head_path.write_bytes(head)
-        st = readers.read_studies(head_path, columns=columns)
+        try:
+            st = readers.read_studies(head_path, columns=columns)
+        except InputError as exc:  # name the user's file, never the temporary copy of its head
+            raise InputError(str(exc).replace(str(head_path), str(p))) from None
+    check_text_lines(p, None, st.encoding)  # the whole file, streamed, before any chunk is parsed
     kw = dict(
         sep=st.delimiter,
         header=None,
@@ -111,7 +116,7 @@ def _csv_chunks(p: Path, chunk_rows: int, columns: dict | None = None):
         decimal=st.decimal,
     )
 
-    def chunks() -> Iterator[tuple[pd.DataFrame, pd.DataFrame]]:
+    def chunks() -> Iterator[tuple[pd.DataFrame, pd.DataFrame, dict]]:
         held: pd.DataFrame | None = None  # trailing empty rows, kept until a filled row follows
         try:
             reader = pd.read_csv(
@@ -145,13 +150,12 @@ def _csv_chunks(p: Path, chunk_rows: int, columns: dict | None = None):
     return source, file_findings, chunks()
 
 
-def _csv_table(
-    grid: pd.DataFrame, headers: list, delimiter: str
-) -> tuple[pd.DataFrame, pd.DataFrame]:
+def _csv_table(grid: pd.DataFrame, headers: list, delimiter: str) -> tuple:
+    """One chunk as (cells as written, cell findings, parsed number columns)."""
     table = grid.reset_index(drop=True)
     table.columns = headers
-    table, _ = _numbers_from_text(table, allow_comma=delimiter != ",")
-    return table, fnd.concat(_cell_findings(table))
+    numbers, _ = number_columns(table, allow_comma=delimiter != ",")
+    return table, fnd.concat(_cell_findings(table)), numbers
 
 
 def _parquet_chunks(p: Path, chunk_rows: int, columns: dict | None = None):
@@ -201,7 +205,7 @@ def _parquet_chunks(p: Path, chunk_rows: int, columns: dict | None = None):
                 df = b.to_pandas().reset_index(drop=True)
                 df.columns = uniq
                 cells = fnd.concat(_cell_findings(df))
-                yield df, cells
+                yield df, cells, {}
         except Exception as exc:
             if isinstance(exc, InputError):
                 raise
@@ -221,10 +225,10 @@ def _at_least_one(chunks, source, columns=None):
     if not any_chunk:
         if source.format == "csv":
             st = readers.read_studies(source.path, columns=columns)
-            yield st.table.iloc[:0], fnd.empty()
+            yield st.table.iloc[:0], fnd.empty(), {}
         else:
             import pyarrow.parquet as pq
 
             df = pq.ParquetFile(source.path).schema_arrow.empty_table().to_pandas()
             df.columns = _unique_headers([str(c) for c in df.columns])[0]
-            yield df, fnd.empty()
+            yield df, fnd.empty(), {}

@@ -11,14 +11,12 @@ import contextlib
 import csv
 import io
 import itertools
-import re
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
-from pandas.api.types import is_object_dtype
 
 from wallstress import findings as fnd
 from wallstress.errors import InputError
@@ -33,8 +31,9 @@ from wallstress.read.grid import (
     text_cells,
     trimmed,
 )
-from wallstress.read.guards import READ_LIMIT_BYTES
+from wallstress.read.guards import READ_LIMIT_BYTES, check_text_lines
 from wallstress.read.study_table import StudyTable
+from wallstress.schema.headers import header_score
 
 DELIMITERS: tuple[str, ...] = ("\t", ";", "|", ",")  # order of preference when several fit
 
@@ -68,32 +67,39 @@ def _decode(p: Path, data: bytes) -> tuple[str, str]:
     return text, enc
 
 
-_QUOTED = re.compile(r'"[^"]*(?:""[^"]*)*"')  # unrolled: no backtracking state per character
+def detect_delimiter(text: str | list[str], columns: dict | None = None) -> str:
+    """The field delimiter of CSV text: tab, ';', '|' or ',', decided by the header row.
 
-
-def detect_delimiter(lines: list[str]) -> str:
-    """The field delimiter of CSV text: tab, ';', '|' or ',' (first that splits the lines evenly).
-
-    Quoted fields are ignored. A candidate fits when at least 80 % of the non-empty lines contain it
-    the same number of times (and at least once); several fitting candidates are taken in the order
-    of ``DELIMITERS`` (',' last, because it is also a decimal mark).
+    Each candidate splits the first lines as a CSV reader would (quoted fields, with any ';' or
+    line break in them, stay whole). The header row is the row naming the most known fields
+    (:func:`~wallstress.schema.headers.header_score`, the lab's ``columns`` map included); the
+    candidate whose header row names most fields wins, then the one whose data rows have the
+    header's number of fields, then the order of ``DELIMITERS`` (',' last: it is also a decimal
+    mark).
     """
-    body = [_QUOTED.sub("", ln) for ln in lines if ln.strip()]
-    if not body:
-        return ","
-    best = None
-    for d in DELIMITERS:
-        counts = np.array([ln.count(d) for ln in body])
-        if counts.max() == 0:
+    if not isinstance(text, str):
+        text = "\n".join(text)
+    best, best_key = ",", None
+    for order, d in enumerate(DELIMITERS):
+        try:
+            rows = [
+                r
+                for r in itertools.islice(csv.reader(io.StringIO(text), delimiter=d), 200)
+                if any(c.strip() for c in r)
+            ]
+        except csv.Error:
             continue
-        vals, freq = np.unique(counts[counts > 0], return_counts=True)
-        mode = vals[np.argmax(freq)]
-        share = float(np.mean(counts == mode))
-        if share >= 0.8:
-            return d
-        if best is None or share > best[1]:
-            best = (d, share)
-    return best[0] if best else ","
+        if not rows:
+            continue
+        scores = [header_score(r, columns) for r in rows[:HEADER_SEARCH_ROWS]]
+        h = int(np.argmax(scores))
+        width = len(rows[h])
+        data = rows[h + 1 :]
+        fit = float(np.mean([len(r) == width for r in data])) if data else 1.0
+        key = (scores[h], width > 1, fit >= 0.8, fit, -order)
+        if best_key is None or key > best_key:
+            best, best_key = d, key
+    return best
 
 
 @contextlib.contextmanager
@@ -137,10 +143,11 @@ def _read_csv_text(p: Path, data: bytes, max_rows, columns) -> StudyTable:
         )
     # whole lines (however long): a cut first line would give too few column names, and pandas
     # then takes the surplus leading fields of the header as an index
+    check_text_lines(p, data, enc)
     head = _head(text)
     del text  # decoded to check the encoding; the parser reads the bytes
     sample = [ln.rstrip("\r\n") for ln in itertools.islice(io.StringIO(head, newline=None), 200)]
-    delim = detect_delimiter(sample)
+    delim = detect_delimiter(head, columns)
     nrows = None if max_rows is None else max_rows + HEADER_SEARCH_ROWS + 2
     try:
         width = max((len(r) for r in csv.reader(sample, delimiter=delim)), default=1)
@@ -175,7 +182,7 @@ def _read_csv_text(p: Path, data: bytes, max_rows, columns) -> StudyTable:
     if max_rows is not None:
         table = table.iloc[:max_rows].reset_index(drop=True)
     cell_parts = _cell_findings(table)  # before numbers: "#N/A" in a number column -> NaN
-    table, dec = _numbers_from_text(table, allow_comma=delim != ",")
+    numbers, dec = number_columns(table, allow_comma=delim != ",")
     parts = [*notes, *parts, *cell_parts]
     if dec == ",":
         parts.append(
@@ -195,6 +202,7 @@ def _read_csv_text(p: Path, data: bytes, max_rows, columns) -> StudyTable:
         decimal=dec,
         findings=fnd.concat(parts),
         first_data_row=first,
+        numbers=numbers,
     )
 
 
@@ -204,26 +212,25 @@ _PLAIN_NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
 _COMMA_NUM = r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?"
 
 
-def _numbers_from_text(table: pd.DataFrame, allow_comma: bool) -> tuple[pd.DataFrame, str]:
-    """Columns whose every non-empty cell is a number become float64; others stay text.
+def number_columns(table: pd.DataFrame, allow_comma: bool) -> tuple[dict, str]:
+    """The text columns whose every non-empty cell is a number, parsed: ({header: float64}, mark).
 
-    With ``allow_comma`` (delimiter not ','), a column of numbers written with a decimal comma is
-    read too, unless every cell looks like a thousands separator ("1,234"). Columns are checked a
-    group at a time, all cells of a group at once (:func:`wallstress.read.grid.text_cells`): a
+    The table itself is not changed (its cells are written back as the user wrote them). With
+    ``allow_comma`` (delimiter not ','), a column of numbers written with a decimal comma is read
+    too, unless every cell looks like a thousands separator ("1,234"). Columns are checked a group
+    at a time, all cells of a group at once (:func:`wallstress.read.grid.text_cells`): a
     50 x 20,000 table is one group, a 10^6-row table about one column per group.
     """
     n, k = table.shape
     if k == 0 or n == 0:
-        return table, "."
-    converted: dict[int, np.ndarray] = {}
+        return {}, "."
+    converted: dict = {}
     comma = False
     for start, sub in column_groups(table):
         got, group_comma = _numbers_in(sub, allow_comma)
-        converted.update({start + j: v for j, v in got.items()})
+        converted.update({table.columns[start + j]: v for j, v in got.items()})
         comma |= group_comma
-    if not converted:
-        return table, "."
-    return _assemble(table, converted), ("," if comma else ".")
+    return converted, ("," if comma else ".")
 
 
 def _numbers_in(sub: pd.DataFrame, allow_comma: bool) -> tuple[dict[int, np.ndarray], bool]:
@@ -271,20 +278,3 @@ def _parse_floats(text) -> np.ndarray:
     if isinstance(parsed, pa.ChunkedArray):
         parsed = parsed.combine_chunks() if parsed.num_chunks else pa.array([], pa.float64())
     return parsed.to_numpy(zero_copy_only=False)
-
-
-def _assemble(table: pd.DataFrame, converted: dict) -> pd.DataFrame:
-    """Converted columns (float64 by position), the others as they were (text keeps its dtype)."""
-    single_object = all(is_object_dtype(dt) for dt in table.dtypes)
-    arr = table.to_numpy(dtype=object) if single_object else None
-    out = {}
-    for j in range(table.shape[1]):
-        if j in converted:
-            out[j] = converted[j]
-        elif arr is not None:
-            out[j] = arr[:, j]
-        else:
-            out[j] = table.iloc[:, j]
-    res = pd.DataFrame(out, index=table.index, copy=False)  # each column its own block, no copy
-    res.columns = table.columns
-    return res

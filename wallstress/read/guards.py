@@ -24,6 +24,8 @@ import zipfile
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
+
 from wallstress.errors import InputError
 
 
@@ -42,6 +44,71 @@ ZIP_LIMITS = ZipLimits()
 
 
 READ_LIMIT_BYTES = 512 * 1024**2  # a whole study list read into memory at once
+
+# A study list has one row per study and tens to a few thousand columns (the widest we read is
+# 20,000). A line of more fields than MAX_FIELDS is not a study list, and parsing it would take
+# memory out of all proportion (a 50 MB line of 25 million fields): it is refused before any parser
+# runs. A long line of few fields (one 50 MB comment) is read, with a finding on the cell.
+MAX_FIELDS = 100_000
+_LONG_LINE = 64 * 1024  # lines longer than this have their delimiters counted
+_SCAN_BYTES = 16 * 1024**2
+
+
+def check_text_lines(p: Path, data: bytes | None, encoding: str, delimiters=(",", ";", "\t", "|")):
+    """Refuse, before parsing, a text file with a line of ``MAX_FIELDS`` fields or more.
+
+    Delimiters are counted as bytes, quoted ones too, which only errs towards refusing absurd lines.
+    ``data`` is the file's bytes, or None to stream the file at ``p`` in windows (a file read in
+    chunks); either way no second copy of the file is made.
+    """
+    if encoding.startswith("utf-16"):  # rare: check the text as UTF-8 bytes
+        raw = data if data is not None else p.read_bytes()
+        data = raw.decode(encoding, errors="replace").encode("utf-8")
+    seps = [d.encode() for d in delimiters]
+
+    def windows():
+        if data is not None:
+            for s in range(0, len(data), _SCAN_BYTES):
+                yield data[s : s + _SCAN_BYTES]
+            return
+        with open(p, "rb") as fh:
+            while block := fh.read(_SCAN_BYTES):
+                yield block
+
+    line_no, open_len, open_counts = 1, 0, [0] * len(seps)
+    for block in windows():
+        ends = np.flatnonzero(np.frombuffer(block, dtype=np.uint8) == 10)
+        starts = np.concatenate([[0], ends + 1])
+        stops = np.concatenate([ends, [len(block)]])
+        lengths = stops - starts
+        lengths[0] += open_len  # the line carried over from the last window
+        for i in np.flatnonzero(lengths > _LONG_LINE):
+            a, b = int(starts[i]), int(stops[i])
+            counts = [block.count(sep, a, b) for sep in seps]
+            if i == 0:
+                counts = [c + o for c, o in zip(counts, open_counts, strict=True)]
+            if i < len(ends):  # a whole line: judge it
+                _check_fields(p, line_no + int(i), counts, delimiters)
+        # the last segment stays open into the next window
+        a = int(starts[-1])
+        tail = [block.count(sep, a) for sep in seps]
+        if len(ends):
+            open_len, open_counts = int(lengths[-1]), tail
+        else:
+            open_len += len(block)
+            open_counts = [c + o for c, o in zip(tail, open_counts, strict=True)]
+        _check_fields(p, line_no + len(ends), open_counts, delimiters)
+        line_no += len(ends)
+
+
+def _check_fields(p: Path, line: int, counts, delimiters) -> None:
+    for n, d in zip(counts, delimiters, strict=True):
+        if n >= MAX_FIELDS:
+            raise InputError(
+                f"{p}: line {line} has more than {MAX_FIELDS:,} fields (at least {n + 1:,} separated by "
+                f"{d!r}); a study list has one row per study and at most a few thousand columns: "
+                "check that this is the file you meant"
+            )
 
 
 def _size_text(n: int) -> str:

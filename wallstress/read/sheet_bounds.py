@@ -31,6 +31,7 @@ import re
 import zipfile
 from dataclasses import dataclass
 from pathlib import Path
+from xml.parsers import expat
 
 import numpy as np
 import pandas as pd
@@ -43,9 +44,13 @@ ROW_GAP = 10_000  # empty rows that end the table in a bounded read
 COL_GAP = 256  # empty columns that end the table in a bounded read
 _CHUNK = 1 << 22
 
-_REF_COL = re.compile(rb'\sr="([A-Z]{1,3})[0-9]')
-_REF_ROW = re.compile(rb'\sr="[A-Z]{0,3}([0-9]{1,8})"')
-_CELL_TAG = re.compile(rb'<c\s[^>]*?\br="([A-Z]{1,3})([0-9]{1,8})"[^>]*>')
+# The ``r`` attribute of <row> and <c> in any legal XML form: spaces around "=", either quote
+# (XML 1.0, 3.1). A form these do not read (a character reference such as r="&#65;1") is noticed by
+# counting every "r=" and read by a real XML parser instead (:func:`_extent_by_parser`).
+_R_ANY = re.compile(rb"\sr\s*=")
+_REF = re.compile(rb'\sr\s*=\s*(["\'])([A-Z]{0,3})([0-9]{1,8})\1')
+_ROW_TAG = re.compile(rb"<(?:[\w.-]+:)?row[\s/>]")
+_CELL_TAG = re.compile(rb'<(?:[\w.-]+:)?c\s[^>]*?\br\s*=\s*(["\'])([A-Z]{1,3})([0-9]{1,8})\1[^>]*>')
 
 
 @dataclass(frozen=True)
@@ -96,18 +101,60 @@ def _chunks(fh):
 
 
 def xlsx_extent(zf: zipfile.ZipFile, part: str) -> Extent:
-    """The farthest row and column any cell or row of an xlsx sheet part names (streamed)."""
+    """The farthest row and column any cell or row of an xlsx sheet part names (streamed).
+
+    Read by pattern (fast); when some ``r`` attribute is written in a form the pattern does not
+    read, the part is read again by an XML parser, so no legal form can hide a far cell.
+    """
     max_row = max_col = n_row_tags = 0
+    unread = False
     with zf.open(part) as fh:
         for buf in _chunks(fh):
-            letters = set(_REF_COL.findall(buf))
+            refs = _REF.findall(buf)
+            unread |= len(refs) != len(_R_ANY.findall(buf))
+            letters = {c for _, c, _ in refs if c}
             if letters:
                 max_col = max(max_col, max(map(_col_number, letters)))
-            rows = _REF_ROW.findall(buf)
-            if rows:
-                max_row = max(max_row, max(map(int, rows)))
-            n_row_tags += buf.count(b"<row")
+            if refs:
+                max_row = max(max_row, max(int(r) for _, _, r in refs))
+            n_row_tags += len(_ROW_TAG.findall(buf))
+    if unread:
+        return _extent_by_parser(zf, part)
     return Extent(max(max_row, n_row_tags), max_col)
+
+
+_REF_TEXT = re.compile(r"^([A-Z]{0,3})([0-9]{1,8})$")
+
+
+def _extent_by_parser(zf: zipfile.ZipFile, part: str) -> Extent:
+    """:func:`xlsx_extent` by expat (streamed; character references resolved). A reference that
+    is not a cell or row address counts as the farthest cell, so the bounded read is used."""
+    far = {"row": 0, "col": 0, "rows": 0}
+
+    def start(name, attrs):
+        local = name.rsplit("}", 1)[-1]
+        if local not in ("row", "c"):
+            return
+        far["rows"] += local == "row"
+        ref = attrs.get("r")
+        if ref is None:
+            return
+        m = _REF_TEXT.match(ref.strip())
+        if m is None:
+            far["row"], far["col"] = 1_048_576, 16_384
+            return
+        if m.group(1):
+            far["col"] = max(far["col"], _col_number(m.group(1).encode()))
+        far["row"] = max(far["row"], int(m.group(2)))
+
+    parser = expat.ParserCreate(namespace_separator="}")
+    parser.StartElementHandler = start
+    try:
+        with zf.open(part) as fh:
+            parser.ParseFile(fh)
+    except expat.ExpatError as exc:  # the caller names the file and the sheet
+        raise ValueError(f"the sheet's XML is not well-formed ({exc})") from None
+    return Extent(max(far["row"], far["rows"]), far["col"])
 
 
 def _xlsx_cells(zf: zipfile.ZipFile, part: str) -> tuple[np.ndarray, np.ndarray]:
@@ -118,8 +165,8 @@ def _xlsx_cells(zf: zipfile.ZipFile, part: str) -> tuple[np.ndarray, np.ndarray]
             for m in _CELL_TAG.finditer(buf):
                 if m.group(0).endswith(b"/>"):
                     continue
-                cols.append(_col_number(m.group(1)) - 1)
-                rows.append(int(m.group(2)) - 1)
+                cols.append(_col_number(m.group(2)) - 1)
+                rows.append(int(m.group(3)) - 1)
     return np.asarray(rows, dtype=np.int64), np.asarray(cols, dtype=np.int64)
 
 

@@ -17,8 +17,10 @@ class StudyTable:
     Attributes
     ----------
     table : DataFrame
-        Raw cells under the user's own headers (made unique), one row per study, file order.
-        Numbers as numbers where the file has numbers, text as text, NaN for empty cells.
+        Raw cells under the user's own headers (made unique), one row per study, file order, as
+        the file holds them: a CSV's cells as their text (``000123`` stays ``000123``), a
+        workbook's as its cell types (numbers, text, dates, booleans); NaN for empty cells.
+        Written back unchanged.
     path : Path
     format : str
         One of ``FORMATS`` (the contents decide, not the file name).
@@ -38,6 +40,9 @@ class StudyTable:
         All sheets of a workbook (empty for csv/parquet).
     first_data_row : int
         0-based row in the file of ``table``'s first row.
+    numbers : dict
+        Header -> float64 values, for the text columns whose every non-empty cell is a number
+        (the decimal mark applied): the computation's own parsed copy, so the table keeps the text.
     """
 
     table: pd.DataFrame
@@ -52,3 +57,4 @@ class StudyTable:
     findings: pd.DataFrame = field(default_factory=fnd.empty)
     sheets: list = field(default_factory=list)
     first_data_row: int = 1
+    numbers: dict = field(default_factory=dict)

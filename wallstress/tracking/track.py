@@ -241,15 +241,28 @@ def _flatten(d: dict, prefix: str = "") -> list[tuple[str, str]]:
     return rows
 
 
+SHEETS: tuple[str, ...] = (
+    "patients",
+    "visits",
+    "transitions",
+    "prevalence_by_year",
+    "prevalence_by_sex",
+    "tracking_findings",
+    "tracking_methods",
+)
+"""The tables of a follow-up, in the order they are written."""
+
+
 def tracking_sheets(tracking: Tracking) -> dict[str, pd.DataFrame]:
     """Ordered sheets for a writer: patients, visits, transitions, prevalence, findings, methods."""
     methods = pd.DataFrame(_flatten(tracking.methods), columns=["item", "value"])
-    return {
-        "patients": tracking.patients,
-        "visits": tracking.visits,
-        "transitions": tracking.transitions,
-        "prevalence_by_year": tracking.prevalence_by_year,
-        "prevalence_by_sex": tracking.prevalence_by_sex,
-        "tracking_findings": tracking.findings,
-        "tracking_methods": methods,
-    }
+    tables = (
+        tracking.patients,
+        tracking.visits,
+        tracking.transitions,
+        tracking.prevalence_by_year,
+        tracking.prevalence_by_sex,
+        tracking.findings,
+        methods,
+    )
+    return dict(zip(SHEETS, tables, strict=True))

@@ -13,7 +13,7 @@ import pandas as pd
 
 from wallstress import findings as _findings
 from wallstress.errors import OutputError
-from wallstress.write import safety
+from wallstress.write import formula_text, safety
 from wallstress.write.fast_csv import write_csv
 from wallstress.write.methods_sheet import _json_default, methods_record
 from wallstress.write.parts import WriteReport, _sidecar
@@ -23,13 +23,21 @@ def _write_flat(out, suffix, parts, methods, source, escape_formulas) -> WriteRe
     report = WriteReport()
     main = parts[0].frame
     if suffix == ".csv":
-        report.formula_like = safety.formula_like_findings(main, escaped=escape_formulas)
+        report.formula_like = formula_text.formula_like_findings(main, escaped=escape_formulas)
+        done = " and were prefixed with a single quote" if escape_formulas else ""
         if len(report.formula_like):
             report.notes.append(
-                f"{len(report.formula_like)} text cell(s) start like a spreadsheet formula"
-                + (" and were prefixed with a single quote" if escape_formulas else "")
-                + " (finding formula_like_text)"
+                f"{len(report.formula_like)} text cell(s) or header(s) of {out.name} start like a "
+                f"spreadsheet formula{done} (finding formula_like_text)"
             )
+        for part in parts[1:]:  # the other tables: counted in a note
+            n = len(formula_text.formula_like_findings(part.frame))
+            if n:
+                report.notes.append(
+                    f"{n} text cell(s) or header(s) of {_sidecar(out, part.key).name} start like a "
+                    f"spreadsheet formula{done}"
+                    + ("" if escape_formulas else "; write with --escape-formulas to escape them")
+                )
     outputs = [out] + [_sidecar(out, p.key) for p in parts if p.key]
     methods_json = _sidecar(out, "methods", ".json")
     with safety.atomic_files() as batch:
@@ -69,7 +77,7 @@ def _to_csv(frame, tmp, source, escape_formulas) -> None:
     if decimal == delimiter:
         delimiter = ";"
     if escape_formulas:
-        frame = safety.escape_formula_text(frame)
+        frame = formula_text.escape_formula_text(frame)
     write_csv(frame, tmp, delimiter=delimiter, decimal=decimal, encoding=encoding)
 
 
@@ -137,6 +145,6 @@ def _is_missing(v) -> bool:
 
 
 def _add_missing_findings(findings: pd.DataFrame, extra: pd.DataFrame) -> pd.DataFrame:
-    if "code" in findings.columns and (findings["code"] == safety.FORMULA_LIKE_CODE).any():
+    if "code" in findings.columns and (findings["code"] == formula_text.FORMULA_LIKE_CODE).any():
         return findings
     return _findings.concat([findings, extra])

@@ -27,6 +27,8 @@ import re
 from pathlib import Path
 
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from wallstress import findings as _findings
 from wallstress.errors import OutputError
@@ -116,9 +118,12 @@ def write_results(
                 f"sheet_names has unknown role(s) {sorted(unknown)}; use {sorted(names)}"
             )
         names.update(sheet_names)
+    table = analysis.table
+    if in_place or Path(out_path or "").suffix.lower() == ".xlsx":
+        table = numbers_as_numbers(table, getattr(source, "numbers", None))
     parts = [
-        _Part(names["results"], "", analysis.table, unit_columns="outputs"),
-        _Part(names["findings"], "findings", _findings_for_writing(analysis.findings)),
+        _Part(names["results"], "", table, unit_columns="outputs"),
+        _Part(names["findings"], results_keys()[1], _findings_for_writing(analysis.findings)),
     ]
     return _write_bundle(
         out_path,
@@ -129,6 +134,33 @@ def write_results(
         escape_formulas=escape_formulas,
         methods_sheet=names["methods"],
     )
+
+
+# A number written plainly: the text a spreadsheet shows for the number is the text of the cell
+# (no leading zero, no sign "+", no exponent, no trailing zero after the decimal mark).
+_PLAIN_DECIMAL = r"^-?(?:0|[1-9][0-9]*)(?:[.,][0-9]*[1-9])?$"
+
+
+def numbers_as_numbers(table: pd.DataFrame, numbers: dict | None) -> pd.DataFrame:
+    """For a workbook, the CSV columns of numbers as number cells; every other cell as its text.
+
+    A column becomes numbers only when every non-empty cell is a number written plainly (``165``,
+    ``4.8``, ``4,8``): ``000123``, ``+5``, ``1e3`` and ``4.80`` stay text, so no identifier or
+    written form is altered. ``numbers`` is the reader's parsed copy (``StudyTable.numbers``).
+    """
+    swap = {}
+    for name, values in (numbers or {}).items():
+        if name in table.columns:
+            text = pa.array(table[name].astype("str").array)
+            plain = pc.match_substring_regex(text, _PLAIN_DECIMAL)
+            if pc.all(pc.or_(plain, pc.is_null(plain))).as_py() is not False:
+                swap[name] = values
+    if not swap:
+        return table
+    out = table.copy(deep=False)
+    for name, values in swap.items():
+        out[name] = values
+    return out
 
 
 def write_sheets(
@@ -170,7 +202,7 @@ def write_sheets(
             raise OutputError(
                 f"sheets[{name!r}] is a {type(frame).__name__}, not a DataFrame; pass DataFrames"
             )
-        parts.append(_Part(str(name), "" if i == 0 else _slug(str(name)), frame))
+        parts.append(_Part(str(name), sheet_keys(sheets)[i], frame))
     return _write_bundle(
         out_path,
         parts,
@@ -180,6 +212,25 @@ def write_sheets(
         escape_formulas=escape_formulas,
         methods_sheet=methods_sheet,
     )
+
+
+def planned_outputs(out_path, keys) -> list[Path]:
+    """Every file a write to ``out_path`` makes: the main file and, for .csv / .parquet, one side
+    file per further table key (``name.KEY.csv``) and ``name.methods.json``."""
+    out = Path(out_path)
+    if _check_suffix(out) == ".xlsx":
+        return [out]
+    return [out, *(_sidecar(out, k) for k in keys if k), _sidecar(out, "methods", ".json")]
+
+
+def results_keys() -> list[str]:
+    """The side-file keys of :func:`write_results` (results in the main file, then findings)."""
+    return ["", "findings"]
+
+
+def sheet_keys(names) -> list[str]:
+    """The side-file keys of :func:`write_sheets` for tables named ``names`` (the first is main)."""
+    return ["" if i == 0 else _slug(str(n)) for i, n in enumerate(names)]
 
 
 def _write_bundle(out_path, parts, methods, *, source, in_place, escape_formulas, methods_sheet):
@@ -195,9 +246,7 @@ def _write_bundle(out_path, parts, methods, *, source, in_place, escape_formulas
             )
         out = Path(out_path)
         suffix = _check_suffix(out)
-        planned = [out] + [_sidecar(out, p.key) for p in parts if p.key]
-        if suffix in (".csv", ".parquet"):
-            planned.append(_sidecar(out, "methods", ".json"))
+        planned = planned_outputs(out, [p.key for p in parts])
         for p in planned:
             if safety.same_file(p, src_path):
                 raise OutputError(

@@ -5,14 +5,19 @@ Everything that touches the user's disk on the writing side goes through here:
 - :func:`atomic_files` writes one or more files through temporary files in the target folder and
   moves them into place with ``os.replace`` only when every one of them was written; on any exception
   (``KeyboardInterrupt`` included) the temporaries are removed and earlier outputs stay intact.
+- :func:`protected_inputs` names the inputs of a run: no atomic write may target one of them, and a
+  commit is refused (nothing replaced) when one changed while the run was working;
+  :func:`check_outputs` compares every planned output with every input before any work starts.
+- Temporaries are named ``.NAME.PID.RANDOM.wallstress-tmp``; those of a process that is gone (a run
+  killed with SIGKILL) are removed by the next run that writes in the same folder.
 - :func:`sha256_file` and :func:`backup_copy` back the "input is never changed" invariant.
-- :func:`formula_like_mask`, :func:`formula_like_cells` and :func:`escape_formula_text` deal with text
-  that a spreadsheet program would run as a formula when it opens a CSV file.
 """
 
 from __future__ import annotations
 
 import contextlib
+import contextvars
+import glob
 import hashlib
 import os
 import re
@@ -22,22 +27,7 @@ from collections.abc import Iterator
 from datetime import datetime
 from pathlib import Path
 
-import numpy as np
-import pandas as pd
-
-from wallstress import findings as _findings
 from wallstress.errors import OutputError
-
-FORMULA_PREFIXES: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r")
-"""First characters that make a spreadsheet program treat a CSV text cell as a formula.
-
-Common practice, no source (the usual CSV-injection list: ``= + - @``, tab and carriage return).
-"""
-
-FORMULA_LIKE_CODE = "formula_like_text"
-
-_HYPERLINK_RE = re.compile(r"^\s*(?:https?://|ftp://|mailto:|file:|www\.|\\\\)", re.IGNORECASE)
-
 
 # --------------------------------------------------------------------------------------------------
 # hashes and paths
@@ -73,6 +63,79 @@ def same_file(a: str | os.PathLike | None, b: str | os.PathLike | None) -> bool:
     return os.path.normcase(os.path.abspath(pa)) == os.path.normcase(os.path.abspath(pb))
 
 
+_PROTECTED: contextvars.ContextVar[tuple] = contextvars.ContextVar(
+    "wallstress_protected_inputs", default=()
+)
+
+
+def _signature(path: Path) -> tuple | None:
+    try:
+        st = os.stat(path)
+    except OSError:
+        return None
+    return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns)
+
+
+@contextlib.contextmanager
+def protected_inputs(*paths) -> Iterator[None]:
+    """While the block runs, the files in ``paths`` are inputs: no atomic write may target one of
+    them (:class:`AtomicFiles` refuses), and a commit is refused, replacing nothing, when one of
+    them changed since the block began. ``None`` entries are ignored."""
+    entries = tuple((Path(p), _signature(Path(p))) for p in paths if p is not None)
+    token = _PROTECTED.set(_PROTECTED.get() + entries)
+    try:
+        yield
+    finally:
+        _PROTECTED.reset(token)
+
+
+def _input_named(target: Path) -> Path | None:
+    return next((p for p, _ in _PROTECTED.get() if same_file(target, p)), None)
+
+
+def check_outputs(outputs, inputs=()) -> list[Path]:
+    """Refuse, before any work, a set of outputs that would harm an input or each other.
+
+    Every planned output (main file and side files) is compared with every input (``inputs`` and
+    the :func:`protected_inputs` in force; resolved path and same file) and with the others; an
+    output that is an existing folder, or whose folder does not exist, is refused too.
+
+    Returns
+    -------
+    list of Path
+        The outputs, as paths.
+
+    Raises
+    ------
+    OutputError
+        One line naming the output and what to do.
+    """
+    every_input = [Path(i) for i in inputs if i is not None] + [p for p, _ in _PROTECTED.get()]
+    outs: list[Path] = []
+    for out in map(Path, outputs):
+        if out.is_dir():
+            raise OutputError(f"{out} is a folder; give a file name for the output (-o)")
+        harmed = next((i for i in every_input if same_file(out, i)), None)
+        if harmed is not None:
+            what = (
+                "your input" if same_file(harmed, out) and harmed == out else f"the input {harmed}"
+            )
+            raise OutputError(
+                f"writing {out} would overwrite {what}; choose another -o (inputs are never "
+                "written over)"
+            )
+        twin = next((o for o in outs if same_file(out, o)), None)
+        if twin is not None:
+            raise OutputError(f"two outputs of this run would both be {out}; choose another -o")
+        folder = out.parent if str(out.parent) else Path(".")
+        if not folder.is_dir():
+            raise OutputError(
+                f"output folder {str(folder)!r} does not exist; create it or choose another -o"
+            )
+        outs.append(out)
+    return outs
+
+
 def excel_lock_file(path: str | os.PathLike) -> Path | None:
     """The ``~$name.xlsx`` owner file Excel and LibreOffice leave while a workbook is open, if present."""
     p = Path(path)
@@ -90,6 +153,34 @@ def _new_file_mode() -> int:
 
 # --------------------------------------------------------------------------------------------------
 # atomic writing
+
+
+TEMP_SUFFIX = ".wallstress-tmp"
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except (PermissionError, OSError):
+        return True
+    return True
+
+
+def remove_stale_temporaries(folder: Path, name: str) -> list[Path]:
+    """Remove our temporaries of ``name`` in ``folder`` left by a process that is gone (a run
+    killed before it could clean up); a running process's temporaries are left alone."""
+    removed = []
+    pattern = os.path.join(glob.escape(str(folder)), f".{glob.escape(name)}.*{TEMP_SUFFIX}")
+    for found in glob.glob(pattern):
+        middle = os.path.basename(found)[len(name) + 2 : -len(TEMP_SUFFIX)]
+        pid_text = middle.split(".", 1)[0]
+        if pid_text.isdigit() and int(pid_text) != os.getpid() and not _alive(int(pid_text)):
+            with contextlib.suppress(OSError):
+                os.unlink(found)
+                removed.append(Path(found))
+    return removed
 
 
 class AtomicFiles:
@@ -112,9 +203,18 @@ class AtomicFiles:
             raise OutputError(
                 f"output folder {str(folder)!r} does not exist; create it or choose another -o"
             )
+        if target.is_dir():
+            raise OutputError(f"{target} is a folder; give a file name for the output")
+        harmed = _input_named(target)
+        if harmed is not None:
+            raise OutputError(
+                f"writing {target} would overwrite the input {harmed}; choose another output name "
+                "(inputs are never written over)"
+            )
+        remove_stale_temporaries(folder, target.name)
         try:
             fd, tmp = tempfile.mkstemp(
-                prefix=f".{target.name}.", suffix=".wallstress-tmp", dir=folder
+                prefix=f".{target.name}.{os.getpid()}.", suffix=TEMP_SUFFIX, dir=folder
             )
         except OSError as exc:
             raise OutputError(
@@ -130,6 +230,12 @@ class AtomicFiles:
         return [t for _, t in self._pairs]
 
     def _commit(self) -> None:
+        for path, before in _PROTECTED.get():
+            if _signature(path) != before:
+                raise OutputError(
+                    f"the input {path} changed while this run was working; nothing was written "
+                    "(earlier outputs are as they were): run again"
+                )
         mode = _new_file_mode()
         for tmp, target in self._pairs:
             try:
@@ -227,139 +333,6 @@ def backup_copy(path: str | os.PathLike, *, now: datetime | None = None) -> Path
             "Write to another file with -o instead of --in-place"
         )
     return dest
-
-
-# --------------------------------------------------------------------------------------------------
-# formula-like and link-like text
-
-
-def _text_values(col: pd.Series):
-    """The column's ``.str`` accessor when it holds text (non-text cells give NA), else None."""
-    if not (isinstance(col.dtype, pd.StringDtype) or col.dtype == object):
-        return None
-    try:
-        return col.str
-    except AttributeError:  # object column without any text (numbers, dates)
-        return None
-
-
-def formula_like_mask(values) -> np.ndarray:
-    """True where a value is text starting with a formula trigger (:data:`FORMULA_PREFIXES`).
-
-    Parameters
-    ----------
-    values : Series or array-like
-        Cells of one column; numbers, dates and missing values are never formula-like.
-
-    Returns
-    -------
-    ndarray of bool
-    """
-    col = values if isinstance(values, pd.Series) else pd.Series(np.asarray(values, dtype=object))
-    text = _text_values(col)
-    if text is None:
-        return np.zeros(len(col), dtype=bool)
-    hit = text.startswith(FORMULA_PREFIXES)
-    return hit.fillna(False).to_numpy(dtype=bool)
-
-
-def hyperlink_like_mask(values) -> np.ndarray:
-    """True where a value is text that looks like a link (``http://``, ``www.``, ``mailto:``, UNC path)."""
-    col = values if isinstance(values, pd.Series) else pd.Series(np.asarray(values, dtype=object))
-    text = _text_values(col)
-    if text is None:
-        return np.zeros(len(col), dtype=bool)
-    return text.contains(_HYPERLINK_RE).fillna(False).to_numpy(dtype=bool)
-
-
-def formula_like_cells(table: pd.DataFrame) -> pd.DataFrame:
-    """Every text cell of ``table`` that a spreadsheet program could run as a formula.
-
-    Returns
-    -------
-    DataFrame
-        Columns ``row`` (0-based position), ``column`` (header) and ``value``; one row per cell.
-    """
-    parts = []
-    for name in table.columns:
-        mask = formula_like_mask(table[name])
-        if mask.any():
-            rows = np.flatnonzero(mask)
-            parts.append(
-                pd.DataFrame(
-                    {
-                        "row": rows.astype("int64"),
-                        "column": str(name),
-                        "value": table[name].iloc[rows].astype(object).to_numpy(),
-                    }
-                )
-            )
-    if not parts:
-        return pd.DataFrame(
-            {
-                "row": pd.Series([], dtype="int64"),
-                "column": pd.Series([], dtype=object),
-                "value": pd.Series([], dtype=object),
-            }
-        )
-    return (
-        pd.concat(parts, ignore_index=True)
-        .sort_values(["row"], kind="stable")
-        .reset_index(drop=True)
-    )
-
-
-def formula_like_findings(table: pd.DataFrame, *, escaped: bool = False) -> pd.DataFrame:
-    """Findings (code ``formula_like_text``, severity ``warning``) for formula-like text in ``table``.
-
-    Parameters
-    ----------
-    table : DataFrame
-        The table as it is written.
-    escaped : bool
-        Whether the CSV output prefixed those cells with a single quote.
-    """
-    cells = formula_like_cells(table)
-    if not len(cells):
-        return _findings.empty()
-    if escaped:
-        message = (
-            "text starts like a spreadsheet formula; in the CSV output it was prefixed with a single "
-            "quote so that a spreadsheet program shows it as text"
-        )
-    else:
-        message = (
-            "text starts like a spreadsheet formula; a spreadsheet program opening the CSV output may "
-            "run it: check the cell, or write with escape_formulas (--escape-formulas)"
-        )
-    parts = [
-        _findings.make(
-            grp["row"].to_numpy(),
-            code=FORMULA_LIKE_CODE,
-            severity="warning",
-            message=message,
-            column=str(col),
-            values=grp["value"].to_numpy(),
-        )
-        for col, grp in cells.groupby("column", sort=False)
-    ]
-    return _findings.concat(parts)
-
-
-def escape_formula_text(table: pd.DataFrame) -> pd.DataFrame:
-    """A copy of ``table`` where formula-like text cells are prefixed with a single quote (``'``).
-
-    Only text cells change; numbers (negative ones included), dates and missing values are kept.
-    """
-    out = table.copy()
-    for name in out.columns:
-        mask = formula_like_mask(out[name])
-        if mask.any():
-            dtype = out[name].dtype
-            col = out[name].astype(object)
-            col[mask] = "'" + col[mask].astype(str)
-            out[name] = col.astype(dtype) if isinstance(dtype, pd.StringDtype) else col
-    return out
 
 
 # --------------------------------------------------------------------------------------------------

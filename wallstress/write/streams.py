@@ -17,7 +17,7 @@ import pandas as pd
 
 from wallstress import findings as fnd
 from wallstress.errors import OutputError
-from wallstress.write import safety
+from wallstress.write import formula_text
 from wallstress.write.fast_csv import write_csv
 from wallstress.write.flat import parquet_ready
 from wallstress.write.methods_sheet import _json_default, methods_record
@@ -62,11 +62,11 @@ class _Sink:
     def write(self, table: pd.DataFrame, row_findings: pd.DataFrame, *, offset: int) -> None:
         self.chunk_rows_seen = max(self.chunk_rows_seen, len(table))
         if self.suffix == ".csv":
-            like = safety.formula_like_findings(table, escaped=self.escape)
+            like = formula_text.formula_like_findings(table, escaped=self.escape)
             if len(like):
                 self.formula_like += len(like)
                 row_findings = fnd.concat([row_findings, like])
-            frame = safety.escape_formula_text(table) if self.escape else table
+            frame = formula_text.escape_formula_text(table) if self.escape else table
         else:
             frame = table
         row_findings = row_findings.assign(row=row_findings["row"].to_numpy(dtype="int64") + offset)

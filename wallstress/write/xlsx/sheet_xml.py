@@ -45,7 +45,7 @@ _RESERVED_SHEET_NAMES = ("history",)  # Excel keeps "History" for change trackin
 _ILLEGAL_XML_RE2 = r"[\x00-\x08\x0B\x0C\x0E-\x1F\x{FFFE}\x{FFFF}]"
 _ILLEGAL_XML_PY = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff\ud800-\udfff]")
 _XSTRING_ESCAPE = r"_(x[0-9A-Fa-f]{4}_)"
-_FORMULA_START = r"^[=+\-@\t\r]"  # as wallstress.write.safety.FORMULA_PREFIXES
+_FORMULA_START = r"^[=+\-@\t\r]"  # as wallstress.write.formula_text.FORMULA_PREFIXES
 _CHUNK_ROWS = 16_384
 _COMPRESSLEVEL = 1  # our sheets: fast deflate (about 1.3x the size of level 6, 4x faster)
 _EPOCHS = {False: np.datetime64("1899-12-30", "us"), True: np.datetime64("1904-01-01", "us")}
