@@ -193,9 +193,6 @@ def report_file(
 ) -> Path:
     """One self-contained HTML report; per-patient pages when patients have several studies."""
 
-    from wallstress.report.page import write_report
-    from wallstress.tracking.track import track
-
     options = options or Options()
     out = Path(out)
     check_outputs([out], [path])
@@ -203,6 +200,9 @@ def report_file(
         raise OutputError(
             f"--figures {figures_dir} is a file; give a folder for the figures (it is created)"
         )
+    from wallstress.report.page import write_report
+    from wallstress.tracking.track import track
+
     with protected_inputs(Path(path), *reference_files(options)):
         _, analysis = _read_and_analyse(path, options)
         tracking = None

@@ -16,6 +16,7 @@ from types import SimpleNamespace
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
 
 from wallstress import findings as fnd
 from wallstress.errors import InputError
@@ -202,7 +203,8 @@ def _parquet_chunks(p: Path, chunk_rows: int, columns: dict | None = None):
     def chunks():
         try:
             for b in pf.iter_batches(batch_size=chunk_rows):
-                df = b.to_pandas().reset_index(drop=True)
+                df = readers._plain_columns(pa.Table.from_batches([b]))[0].to_pandas()
+                df = df.reset_index(drop=True)
                 df.columns = uniq
                 cells = fnd.concat(_cell_findings(df))
                 yield df, cells, {}

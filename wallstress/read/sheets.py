@@ -69,7 +69,12 @@ def _read_workbook(p: Path, kind: str, sheet, max_rows, columns) -> StudyTable:
             f"{p}: there is no sheet {sheet!r}; the sheets are {', '.join(repr(n) for n in names)}; "
             "pass one of them with --sheet"
         )
-    candidates = [sheet] if sheet is not None else names
+    hidden = _hidden_sheets(wb)
+    # visible sheets first: a hidden sheet (often an old copy or a lookup table) is read only when
+    # no visible sheet has a study list, and then with a warning
+    candidates = (
+        [sheet] if sheet is not None else [n for n in names if n not in hidden] + list(hidden)
+    )
     last_error = None
     for name in candidates:
         try:
@@ -91,6 +96,10 @@ def _read_workbook(p: Path, kind: str, sheet, max_rows, columns) -> StudyTable:
             )
         if bound_note:
             parts.append(_file_note("stray_cells_ignored", bound_note, "warning"))
+        errors, uncached, scan_notes = (
+            _xlsx_marked_cells(p, name) if kind == "xlsx" else ([], [], [])
+        )
+        grid = _show_marked_cells(grid, errors, uncached)
         if grid.empty or not grid.notna().to_numpy().any():
             last_error = InputError(
                 f"{p}: sheet {name!r} is empty; pass the sheet with the study list with --sheet"
@@ -103,16 +112,27 @@ def _read_workbook(p: Path, kind: str, sheet, max_rows, columns) -> StudyTable:
             if sheet is not None:
                 raise
             continue
-        if kind == "xlsx":
-            fparts += _xlsx_cell_scan(p, name, table, header_row, first, grid)
+        fparts += scan_notes + _marked_cell_findings(table, first, grid, errors, uncached)
         table = _tidy_spreadsheet_columns(table)
         if max_rows is not None:
             table = table.iloc[:max_rows].reset_index(drop=True)
         if sheet is None and len(names) > 1:
+            skipped = f" (hidden sheets are tried last: {', '.join(hidden)})" if hidden else ""
             fparts.append(
                 _file_note(
                     "sheet_chosen",
-                    f"Read sheet {name!r}, the first whose headers are recognised (sheets: {', '.join(names)}); pass --sheet to choose another.",
+                    f"Read sheet {name!r}, the first visible sheet whose headers are recognised "
+                    f"(sheets: {', '.join(names)}){skipped}; pass --sheet to choose another.",
+                )
+            )
+        if name in hidden:
+            fparts.append(
+                _file_note(
+                    "sheet_hidden",
+                    f"Sheet {name!r} is hidden in the workbook"
+                    + ("" if sheet is not None else " and no visible sheet holds a study list")
+                    + "; check that it is the study list you meant.",
+                    "warning",
                 )
             )
         return StudyTable(
@@ -132,6 +152,20 @@ def _read_workbook(p: Path, kind: str, sheet, max_rows, columns) -> StudyTable:
             "headers (e.g. IVSd, LVIDd, PWd, height, weight), map them with --columns, or pass --sheet"
         )
     raise last_error or InputError(f"{p}: the workbook has no sheets; export the study list again")
+
+
+def _hidden_sheets(wb) -> list[str]:
+    """Sheets the workbook hides (hidden or very hidden) or that are not worksheets, in order."""
+    try:
+        meta = wb.sheets_metadata if wb is not None else []
+    except Exception:  # an older reader without metadata: every sheet counts as visible
+        return []
+    return [
+        m.name
+        for m in meta
+        if "visible" not in str(m.visible).lower().rsplit(".", 1)[-1]
+        or "worksheet" not in str(m.typ).lower()
+    ]
 
 
 def _sheet_grid(p: Path, wb, name: str, max_rows, kind: str = "xlsx"):
@@ -308,10 +342,9 @@ def _sheet_part(zf: zipfile.ZipFile, name: str) -> str | None:
     return None
 
 
-def _xlsx_cell_scan(
-    p: Path, name: str, table: pd.DataFrame, header_row: int, first: int, grid
-) -> list:
-    """Find error cells (``t="e"``) and formulas with no cached value in the sheet's XML.
+def _xlsx_marked_cells(p: Path, name: str) -> tuple[list, list, list]:
+    """Error cells (``t="e"``) and formulas with no cached value in the sheet's XML:
+    ``(errors, uncached, notes)``, each cell as (reference, text as written).
 
     The calamine reader returns both as empty cells; this scan says which they were. It streams the
     part and parses (with defusedxml) only when the raw text contains an error cell or a formula.
@@ -320,7 +353,7 @@ def _xlsx_cell_scan(
         with zipfile.ZipFile(p) as zf:
             part = _sheet_part(zf, name)
             if part is None or part not in zf.namelist():
-                return []
+                return [], [], []
             with zf.open(part) as fh:
                 found = False
                 tail = b""
@@ -334,7 +367,7 @@ def _xlsx_cell_scan(
                         break
                     tail = buf[-8:]
             if not found:
-                return []
+                return [], [], []
             from defusedxml.ElementTree import iterparse
 
             ns = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
@@ -353,17 +386,41 @@ def _xlsx_cell_scan(
                         uncached.append((ref, "=" + (f.text or "")))
                     el.clear()
     except (zipfile.BadZipFile, KeyError, OSError, ValueError) as exc:
-        return [
-            _file_note(
-                "cell_scan_failed",
-                f"Error values and uncalculated formulas could not be checked ({type(exc).__name__}).",
-                "warning",
-            )
-        ]
+        note = _file_note(
+            "cell_scan_failed",
+            f"Error values and uncalculated formulas could not be checked ({type(exc).__name__}).",
+            "warning",
+        )
+        return [], [], [note]
     except Exception as exc:  # defusedxml refusals and parse errors
         raise InputError(
             f"{p}: sheet {name!r} has unsafe or damaged XML ({type(exc).__name__}); save a fresh copy of the workbook"
         ) from exc
+    return errors, uncached, []
+
+
+def _show_marked_cells(grid: pd.DataFrame, errors: list, uncached: list) -> pd.DataFrame:
+    """The grid with each marked cell's text where the reader gave it empty, so that a row of
+    uncalculated formulas is a row (kept, with a finding on each cell), never a blank line."""
+    marked = [(m, text) for ref, text in (*errors, *uncached) if (m := _CELL_REF.match(ref))]
+    if not marked:
+        return grid
+    cells = [(int(m.group(2)) - 1, _col_index(m.group(1)), text) for m, text in marked]
+    # the reader stops at the last row or column with a value: reach the marked cells too (they
+    # lie within the sheet's measured extent, so this is bounded like the read itself)
+    n_rows = max(grid.shape[0], 1 + max(r for r, _, _ in cells))
+    n_cols = max(grid.shape[1], 1 + max(c for _, c, _ in cells))
+    grid = grid.reindex(index=range(n_rows), columns=range(n_cols)).astype(object)
+    for r, c, text in cells:
+        if pd.isna(grid.iat[r, c]):
+            grid.iat[r, c] = text or "#ERROR"
+    return grid
+
+
+def _marked_cell_findings(table, first: int, grid, errors: list, uncached: list) -> list:
+    """A finding on each marked cell of the table, whose value is then empty (NaN)."""
+    if not errors and not uncached:
+        return []
     col_offset = int(np.flatnonzero(grid.notna().any(axis=0).to_numpy())[0])
     parts = []
     for cells, code, sev, msg in (

@@ -156,6 +156,7 @@ def _read_parquet(p: Path, max_rows, columns) -> StudyTable:
             )
         else:
             tbl = pf.read()
+        tbl, odd = _plain_columns(tbl)
         df = tbl.to_pandas()
     except Exception as exc:
         raise InputError(
@@ -173,7 +174,7 @@ def _read_parquet(p: Path, max_rows, columns) -> StudyTable:
         )
     uniq, dup = _unique_headers(headers)
     df.columns = uniq
-    parts = _duplicate_header_findings(dup)
+    parts = _duplicate_header_findings(dup) + odd
     if len(df) == 0:
         parts.append(
             _file_note("no_rows", "The study list has column names but no data rows.", "warning")
@@ -189,6 +190,43 @@ def _read_parquet(p: Path, max_rows, columns) -> StudyTable:
         findings=fnd.concat(parts),
         first_data_row=1,
     )
+
+
+def _plain_columns(tbl):
+    """Columns a study list cannot hold as such, as text, each with a note: bytes (as UTF-8 where
+    they are, else hexadecimal) and nested values (lists, structs, maps, as their text)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    notes = []
+    for i, field in enumerate(tbl.schema):
+        t = field.type
+        if pa.types.is_binary(t) or pa.types.is_large_binary(t) or pa.types.is_fixed_size_binary(t):
+            try:
+                col = pc.cast(tbl.column(i), pa.string())
+                how = "as UTF-8 text"
+            except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+                col = pa.array(
+                    [None if v is None else "0x" + v.hex() for v in tbl.column(i).to_pylist()],
+                    pa.string(),
+                )
+                how = "as hexadecimal text (not UTF-8)"
+        elif pa.types.is_nested(t):
+            col = pa.array(
+                [None if v is None else str(v) for v in tbl.column(i).to_pylist()], pa.string()
+            )
+            how = "as text"
+        else:
+            continue
+        tbl = tbl.set_column(i, pa.field(field.name, pa.string()), col)
+        notes.append(
+            _file_note(
+                "column_as_text",
+                f"Column {field.name!r} holds {t} values, not numbers or text; carried through "
+                f"{how}, not read as a measurement.",
+            )
+        )
+    return tbl, notes
 
 
 def _duplicate_header_findings(renamed) -> list:

@@ -10,9 +10,12 @@ from __future__ import annotations
 import json
 
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from wallstress import findings as _findings
 from wallstress.errors import OutputError
+from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.write import formula_text, safety
 from wallstress.write.fast_csv import write_csv
 from wallstress.write.methods_sheet import _json_default, methods_record
@@ -47,6 +50,8 @@ def _write_flat(out, suffix, parts, methods, source, escape_formulas) -> WriteRe
                 frame = _add_missing_findings(frame, report.formula_like)
             tmp = batch.path(target)
             if suffix == ".csv":
+                if part.unit_columns == "outputs":  # the results: the user's columns first
+                    frame = numbers_as_shown(frame, frame.shape[1] - len(OUTPUT_COLUMNS))
                 _to_csv(frame, tmp, source, escape_formulas)  # Categoricals as text, by slice
             else:
                 if part.key == "findings":  # text columns, as the chunked path writes them
@@ -61,6 +66,22 @@ def _write_flat(out, suffix, parts, methods, source, escape_formulas) -> WriteRe
         )
     report.extend([*outputs, methods_json])
     return report
+
+
+def numbers_as_shown(frame: pd.DataFrame, n_user: int) -> pd.DataFrame:
+    """The user's float columns (the first ``n_user``, from a workbook or parquet) as the text a
+    spreadsheet shows for them: ``10`` for 10.0, not ``10.0``; shortest round-trip text otherwise
+    (Arrow's float formatting). Text columns (a CSV's cells as written) are left as they are."""
+    floats = [
+        j for j in range(max(n_user, 0)) if pd.api.types.is_float_dtype(frame.iloc[:, j].dtype)
+    ]
+    if not floats:
+        return frame
+    out = frame.copy(deep=False)
+    for j in floats:
+        values = pa.array(frame.iloc[:, j].to_numpy(dtype="float64"), from_pandas=True)
+        out.isetitem(j, pd.Series(pc.cast(values, pa.string()), dtype="str", index=frame.index))
+    return out
 
 
 def _to_csv(frame, tmp, source, escape_formulas) -> None:

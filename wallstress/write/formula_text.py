@@ -107,7 +107,9 @@ def formula_like_cells(table: pd.DataFrame) -> pd.DataFrame:
     )
 
 
-def formula_like_findings(table: pd.DataFrame, *, escaped: bool = False) -> pd.DataFrame:
+def formula_like_findings(
+    table: pd.DataFrame, *, escaped: bool = False, headers: bool = True
+) -> pd.DataFrame:
     """Findings (code ``formula_like_text``, severity ``warning``) for formula-like text in ``table``.
 
     Parameters
@@ -116,9 +118,15 @@ def formula_like_findings(table: pd.DataFrame, *, escaped: bool = False) -> pd.D
         The table as it is written.
     escaped : bool
         Whether the CSV output prefixed those cells with a single quote.
+    headers : bool
+        Also a finding (row -1) for each formula-like header (once per table, not per chunk).
     """
     cells = formula_like_cells(table)
-    headers = [str(c) for c in table.columns if formula_like_mask(pd.Series([str(c)]))[0]]
+    headers = (
+        [str(c) for c in table.columns if formula_like_mask(pd.Series([str(c)]))[0]]
+        if headers
+        else []
+    )
     if not len(cells) and not headers:
         return _findings.empty()
     if escaped:

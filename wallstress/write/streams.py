@@ -17,9 +17,10 @@ import pandas as pd
 
 from wallstress import findings as fnd
 from wallstress.errors import OutputError
+from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.write import formula_text
 from wallstress.write.fast_csv import write_csv
-from wallstress.write.flat import parquet_ready
+from wallstress.write.flat import numbers_as_shown, parquet_ready
 from wallstress.write.methods_sheet import _json_default, methods_record
 
 CHUNK_OUTPUT_SUFFIXES: tuple[str, ...] = (".csv", ".parquet")
@@ -58,15 +59,22 @@ class _Sink:
         self._rows = None
         stack.callback(self.close_rows)
         self._header_done = False
+        self.header_findings = fnd.empty()
 
     def write(self, table: pd.DataFrame, row_findings: pd.DataFrame, *, offset: int) -> None:
         self.chunk_rows_seen = max(self.chunk_rows_seen, len(table))
         if self.suffix == ".csv":
-            like = formula_text.formula_like_findings(table, escaped=self.escape)
+            like = formula_text.formula_like_findings(table, escaped=self.escape, headers=False)
+            if offset == 0:  # the headers, once
+                self.header_findings = formula_text.formula_like_findings(
+                    table.iloc[:0], escaped=self.escape
+                )
+                self.formula_like += len(self.header_findings)
             if len(like):
                 self.formula_like += len(like)
                 row_findings = fnd.concat([row_findings, like])
-            frame = formula_text.escape_formula_text(table) if self.escape else table
+            frame = numbers_as_shown(table, table.shape[1] - len(OUTPUT_COLUMNS))
+            frame = formula_text.escape_formula_text(frame) if self.escape else frame
         else:
             frame = table
         row_findings = row_findings.assign(row=row_findings["row"].to_numpy(dtype="int64") + offset)
@@ -126,7 +134,7 @@ class _Sink:
 
     def finish(self, file_findings, methods, outputs, notes, batch) -> None:
 
-        file_findings = file_findings.reset_index(drop=True)
+        file_findings = fnd.concat([file_findings, self.header_findings]).reset_index(drop=True)
         if self.suffix == ".csv":
             with open(self._findings_tmp, "w", encoding=self.encoding, newline="") as fh:
                 file_findings.to_csv(fh, index=False, sep=self.delimiter, decimal=self.decimal)
