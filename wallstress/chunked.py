@@ -28,6 +28,7 @@ import numpy as np
 import pandas as pd
 
 from wallstress import findings as fnd
+from wallstress.analysis.coverage import require_lv_dimensions
 from wallstress.analysis.pipeline import analyse, analyse_with_findings
 from wallstress.errors import OutputError
 from wallstress.options import Options
@@ -185,6 +186,7 @@ def _run(
 
     sink = _Sink(out, findings_out, suffix, source, escape_formulas)
     state = _RunState(options, file_findings)
+    state.source_name = src
     with safety.atomic_files() as batch, contextlib.ExitStack() as stack:
         sink.open(batch, stack)
         done = 0
@@ -263,7 +265,11 @@ class _RunState:
         self.first_methods: dict | None = None
         self.pin: dict = {}
         self.chunks = 0
-        self.counts = {"rows": 0, "rows_flagged": 0, "rows_with_errors": 0}
+        self.counts = dict.fromkeys(
+            ("rows", "rows_flagged", "rows_with_errors", "rows_without_lv_mass",
+             "rows_without_geometry", "rows_not_studies", "studies"),
+            0,
+        )  # fmt: skip
         self.row_findings = 0
 
     @staticmethod
@@ -277,6 +283,8 @@ class _RunState:
         if self.pin:
             numbers = {self.pin.get(k, k): v for k, v in numbers.items()}
         a = analyse_with_findings(frame, self.options, prior_findings=cells, numbers=numbers)
+        if self.first_methods is None:
+            require_lv_dimensions(a, self.source_name)
         table = a.table
         if self.pin:
             table.columns = cols + list(table.columns[len(cols) :])

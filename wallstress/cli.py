@@ -250,9 +250,18 @@ def analyse(
 def _summarise(counts: dict, notes, written, quiet: bool, strict: bool, where: str = "") -> None:
     """The end-of-run lines, and exit 3 under --strict when any row has an error."""
     if not quiet:
+        gaps = ""
+        if "rows_without_lv_mass" in counts:
+            gaps = (
+                f", {counts['rows_without_lv_mass']} without LV mass, "
+                f"{counts['rows_without_geometry']} without a geometry class"
+            )
+        skipped = counts.get("rows_not_studies", 0)
+        others = f" ({skipped} row(s) not studies, kept without measures)" if skipped else ""
         typer.echo(
-            f"{counts['rows']} studies{where}: {counts['rows_flagged']} flagged, "
-            f"{counts['rows_with_errors']} with errors (see the findings)."
+            f"{counts.get('studies', counts['rows'])} studies{where}{others}: "
+            f"{counts['rows_flagged']} flagged, {counts['rows_with_errors']} with errors{gaps} "
+            "(see the findings)."
         )
         for note in notes:
             typer.echo(f"note: {note}")

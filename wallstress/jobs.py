@@ -13,6 +13,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from wallstress.analysis.coverage import require_lv_dimensions
 from wallstress.analysis.pipeline import analyse_with_findings
 from wallstress.analysis.result import Analysis
 from wallstress.bundled import data_dir
@@ -71,6 +72,13 @@ def read_columns_map(path: str | Path | None) -> dict:
     return dict(zip(t.iloc[:, 0].astype(str), t.iloc[:, 1].astype(str).str.strip(), strict=True))
 
 
+def _loud_notes(analysis: Analysis) -> list[str]:
+    """The file-level findings a user must see on the terminal: inputs that stop measures."""
+    f = analysis.findings
+    hit = f[(f["row"] < 0) & (f["code"] == "input_missing")]
+    return [str(m) for m in hit["message"]]
+
+
 def _source_methods(analysis: Analysis, study) -> None:
     analysis.methods["input"] = {
         "file": study.path.name,
@@ -115,12 +123,13 @@ def analyse_file(
             study.table, options, prior_findings=study.findings, numbers=study.numbers
         )
         _source_methods(analysis, study)
+        require_lv_dimensions(analysis, path)
         bar.step("measures computed")
         written = write_results(
             analysis, out_path, study, in_place=in_place, escape_formulas=escape_formulas
         )
         bar.step("written")
-    notes = list(getattr(written, "notes", []) or [])
+    notes = _loud_notes(analysis) + list(getattr(written, "notes", []) or [])
     paths = list(getattr(written, "paths", written))
     bar.step("done")
     return JobResult(analysis, paths, notes)
@@ -150,6 +159,7 @@ def _read_and_analyse(path, options: Options):
         study.table, options, prior_findings=study.findings, numbers=study.numbers
     )
     _source_methods(analysis, study)
+    require_lv_dimensions(analysis, path)
     return study, analysis
 
 

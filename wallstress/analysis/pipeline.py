@@ -15,12 +15,14 @@ from pandas.api.types import union_categoricals
 
 from wallstress import __version__
 from wallstress import findings as fnd
+from wallstress.analysis.coverage import missing_inputs
 from wallstress.analysis.measures import compute
 from wallstress.analysis.methods import build_methods
 from wallstress.analysis.references import load_set
 from wallstress.analysis.result import Analysis
 from wallstress.options import Options
 from wallstress.prepare.mapping import map_columns
+from wallstress.prepare.rows import non_study_rows, not_study_finding
 from wallstress.prepare.validate import validate_parts
 from wallstress.schema.outputs import OUT, OUTPUT_COLUMNS
 from wallstress.schema.units import UNIT_CHOICES
@@ -87,12 +89,17 @@ def analyse_with_findings(
     refset = load_set(options.reference)
     mapped = map_columns(df, options, numbers=numbers)
     labels = {m["field"]: m["source_column"] for m in mapped.mapping}
-    canonical, vparts = validate_parts(mapped.canonical, labels)
+    canonical, vparts = validate_parts(mapped.canonical, labels, df)
     canonical.index = pd.RangeIndex(len(df))
     out, cparts, used = _compute_in_partitions(canonical, options, refset)
     # every step's findings joined once, in step order (within a row: reader, mapping, validation,
     # measures), sorted by row
-    findings = fnd.concat([prior_findings, mapped.findings, *vparts, *cparts], categorical=True)
+    missing = missing_inputs(mapped.canonical.columns, mapped.unmapped)
+    skip = non_study_rows(df, mapped.canonical, blanked=_blanked_by_reader(prior_findings))
+    parts = [prior_findings, mapped.findings, *missing, *vparts, *cparts]
+    if skip.any():  # not studies: no flags, one note
+        parts = [_without_rows(p, skip) for p in parts] + [not_study_finding(skip, df)]
+    findings = fnd.concat(parts, categorical=True)
     out[OUT.flags] = fnd.categorical_text(*fnd.flag_codes(findings, len(df)))
     # copy=False: each output its own block (no stacking copy of ~30 float columns); an array that
     # is read-only (a view of an input) or already in another column is copied first
@@ -100,9 +107,34 @@ def analyse_with_findings(
     del out
     table = _append(df, outputs)
     methods = build_methods(options, refset, used, mapped, findings, len(df), version=__version__)
+    counts = methods["counts"]
+    studies = ~skip
+    counts["rows_not_studies"] = int(skip.sum())
+    counts["studies"] = int(studies.sum())
+    counts["rows_without_lv_mass"] = int((np.isnan(outputs[OUT.lv_mass_g]) & studies).sum())
+    counts["rows_without_geometry"] = int(((outputs[OUT.geometry].cat.codes <= 0) & studies).sum())
     return Analysis(
         table=table, canonical=canonical, outputs=outputs, findings=findings, methods=methods
     )
+
+
+def _blanked_by_reader(prior) -> np.ndarray:
+    """Rows whose cells the reader emptied (error values, uncalculated formulas): they had
+    content, so they are studies with findings, never blank rows."""
+    if prior is None or not len(prior):
+        return np.zeros(0, dtype="int64")
+    hit = prior["code"].isin(("formula_not_calculated", "spreadsheet_error")).to_numpy(dtype=bool)
+    rows = prior["row"].to_numpy(dtype="int64")[hit]
+    return rows[rows >= 0]
+
+
+def _without_rows(part, skip: np.ndarray):
+    """A findings table without the findings of the rows in ``skip`` (file-level ones kept)."""
+    if part is None or not len(part):
+        return part
+    rows = part["row"].to_numpy()
+    keep = (rows < 0) | ~skip[np.clip(rows, 0, len(skip) - 1)]
+    return part if keep.all() else part[keep]
 
 
 def _own_arrays(out: dict, names) -> dict:

@@ -6,6 +6,8 @@ Nothing here raises on a bad cell: it becomes NaN (or empty) and the caller writ
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pandas as pd
 import pyarrow as pa
@@ -293,6 +295,27 @@ def parse_sex(s: pd.Series) -> tuple[pd.Series, dict[str, np.ndarray]]:
         "sex_numeric_code": per_text(numeric),
         "sex_unreadable": per_text(unreadable),
     }
+
+
+_PAIR = r"^\s*(\d{2,3}(?:[.,]\d+)?)\s*/\s*(\d{2,3}(?:[.,]\d+)?)\s*(?:mm\s*hg)?\s*$"
+
+
+def parse_pressure_pairs(s: pd.Series) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Cuff pressures written as one cell, "128/82" (or "128 / 82 mmHg"): (systolic, diastolic,
+    bad) in mmHg; NaN where empty or unreadable, ``bad`` where a non-empty cell is not a pair.
+
+    Each distinct text is read once.
+    """
+    codes, uniq = _factorize(_as_text(s))
+    got = uniq.str.extract(_PAIR, flags=re.IGNORECASE)
+    sys_u = pd.to_numeric(got[0].str.replace(",", "."), errors="coerce").to_numpy(dtype=float)
+    dia_u = pd.to_numeric(got[1].str.replace(",", "."), errors="coerce").to_numpy(dtype=float)
+    bad_u = (~_is_missing_text(uniq)) & np.isnan(sys_u)
+    return (
+        _expand(sys_u, codes, np.nan).astype("float64"),
+        _expand(dia_u, codes, np.nan).astype("float64"),
+        _expand(bad_u, codes, False).astype(bool),
+    )
 
 
 _PLAIN_INTEGER = r"^-?(?:0|[1-9][0-9]*)$"

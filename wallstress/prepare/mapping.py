@@ -32,6 +32,7 @@ from wallstress.options import Options
 from wallstress.prepare.cells import (
     parse_ids,
     parse_numbers,
+    parse_pressure_pairs,
     parse_sex,
     plain_integers,
 )
@@ -122,11 +123,15 @@ def map_columns(
     unmapped: list = []
     taken: dict[str, str] = {}
 
+    pairs: list[int] = []  # columns holding "128/82"
     for j, col in enumerate(raw.columns):
         header = "" if col is None else str(col)
         fname, how = match_header(col, cols_opt)
         if fname is None:
-            unmapped.append(col)
+            if schema.normalise_header(header) in schema.PRESSURE_PAIR_HEADERS:
+                pairs.append(j)
+            else:
+                unmapped.append(col)
             continue
         if fname in taken:
             unmapped.append(col)
@@ -145,6 +150,19 @@ def map_columns(
             continue
         taken[fname] = header
         fld = schema.BY_NAME[fname]
+        if how == "words, phase assumed":
+            parts.append(
+                fnd.make(
+                    [-1],
+                    code="phase_assumed",
+                    severity="note",
+                    column=header,
+                    field=fname,
+                    message=f"Column {header!r} names no phase of the cycle; it was read as "
+                    f"{fname} (end-diastole, where walls and cavity are measured by convention). "
+                    f"If it is end-systolic, map it with --columns ({header},{fname.replace('d_cm', 's_cm')}).",
+                )
+            )
         s = raw.iloc[:, j].reset_index(drop=True)
         parsed = (numbers or {}).get(col)
         if parsed is not None and (fld.kind != "id" or plain_integers(s)):
@@ -168,6 +186,9 @@ def map_columns(
         mapping.append(
             {"source_column": col, "field": fname, "unit_from": "", "unit_basis": "", "factor": 1.0}
         )
+
+    for j in pairs:
+        parts += _map_pressure_pair(raw, j, canonical, mapping, taken, unmapped)
 
     for user in cols_opt:
         if not any(str(c).strip() == user for c in raw.columns) and not any(
@@ -203,6 +224,55 @@ def map_columns(
         findings=fnd.concat(parts, categorical=True),
         unmapped=unmapped,
     )
+
+
+def _map_pressure_pair(raw, j, canonical, mapping, taken, unmapped) -> list:
+    """A column of "128/82" cells read into sbp_mmhg and dbp_mmhg, unless the list has those
+    columns already (then it is carried through unread, with a note)."""
+    col = raw.columns[j]
+    header = str(col)
+    if "sbp_mmhg" in canonical or "dbp_mmhg" in canonical:
+        unmapped.append(col)
+        return [
+            fnd.make(
+                [-1],
+                code="pressure_pair_unused",
+                severity="note",
+                column=header,
+                field="sbp_mmhg",
+                message=f"Column {header!r} holds blood pressures, but the list has separate "
+                "systolic and diastolic columns; those were used.",
+            )
+        ]
+    s = raw.iloc[:, j].reset_index(drop=True)
+    sbp, dbp, bad = parse_pressure_pairs(s)
+    canonical["sbp_mmhg"], canonical["dbp_mmhg"] = sbp, dbp
+    for fname in ("sbp_mmhg", "dbp_mmhg"):
+        taken[fname] = header
+        mapping.append(
+            {
+                "source_column": col,
+                "field": fname,
+                "unit_from": "mmHg",
+                "unit_basis": "systolic/diastolic cell",
+                "factor": 1.0,
+            }  # fmt: skip
+        )
+    if not bad.any():
+        return []
+    rows = np.flatnonzero(bad)
+    return [
+        fnd.make(
+            rows,
+            code="pressure_unreadable",
+            severity="error",
+            column=header,
+            field="sbp_mmhg",
+            values=s.to_numpy(dtype=object)[rows],
+            message=f"The blood pressure in {header!r} is not written as systolic/diastolic "
+            "(for example 128/82); the pressures of this row are not used.",
+        )
+    ]
 
 
 _SEX_MESSAGES = {
@@ -279,6 +349,14 @@ def _plain_number_dtype(dtype) -> bool:
         and not pd.api.types.is_bool_dtype(dtype)
         and not pd.api.types.is_complex_dtype(dtype)
     )
+
+
+def _example(fld: schema.Field) -> str:
+    """A plausible value of a field, as a user would type it (the middle of its typical range)."""
+    if fld.typical is None:
+        return "4.8"
+    mid = (fld.typical[0] + fld.typical[1]) / 2
+    return f"{mid:.1f}" if mid < 10 else f"{mid:.0f}"
 
 
 def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_option: str):
@@ -384,8 +462,8 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
                 column=header,
                 field=fld.name,
                 values=s.to_numpy(dtype=object)[rows],
-                message=f"{_unit_name(header)!r}: the cell is not a number in a unit of {q}; "
-                "it was not used. Write a plain number (e.g. 4.8).",
+                message=f"The cell of {_unit_name(header)!r} is not a number in a unit of {q}, so "
+                f"it was not used. Write a plain number, for example {_example(fld)}.",
             )
         )
     entry = {

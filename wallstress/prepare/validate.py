@@ -43,8 +43,11 @@ class _Check:
     assembled from whole columns once at the end.
     """
 
-    def __init__(self, canonical: pd.DataFrame, labels: dict[str, str]):
+    def __init__(self, canonical: pd.DataFrame, labels: dict[str, str], raw=None):
         self.canonical, self.labels = canonical, labels
+        # the user's cells, so that a finding shows a value as it was written (4.7 under
+        # "LVIDd (mm)", never the 0.47 cm it was read as)
+        self.raw = raw if raw is not None and raw.columns.is_unique else None
         self.nums: dict[str, np.ndarray] = {
             name: canonical[name].to_numpy(dtype=float)
             for name in canonical.columns
@@ -60,6 +63,9 @@ class _Check:
         mask = np.asarray(mask, dtype=bool)
         if mask.any():
             rows = np.flatnonzero(mask)
+            label = self.labels.get(field)
+            if self.raw is not None and label in self.raw.columns:
+                values = self.raw[label].to_numpy(dtype=object)
             self.parts.append(
                 fnd.make(
                     rows,
@@ -93,11 +99,12 @@ class _Check:
 
 
 def validate_parts(
-    canonical: pd.DataFrame, labels: dict[str, str] | None = None
+    canonical: pd.DataFrame, labels: dict[str, str] | None = None, raw: pd.DataFrame | None = None
 ) -> tuple[pd.DataFrame, list[pd.DataFrame]]:
     """:func:`validate` with the findings as one table per rule, in rule order (not yet joined:
-    the pipeline joins every step's findings once)."""
-    check = _Check(canonical, labels or {})
+    the pipeline joins every step's findings once). ``raw``: the user's cells, whose text the
+    findings show."""
+    check = _Check(canonical, labels or {}, raw)
     for rule in RULES:
         rule(check)
     return check.cleaned(), check.parts
@@ -114,8 +121,9 @@ def ranges(check: _Check) -> None:
                     bad,
                     f"{name}_impossible",
                     "error",
-                    f"{f.meaning} outside {f.hard[0]:g}-{f.hard[1]:g} {f.unit} is impossible; "
-                    "not used. Check the value and its unit.",
+                    f"{f.meaning.rstrip('.')} outside {f.hard[0]:g}-{f.hard[1]:g} {f.unit} is "
+                    "not possible in an adult, so it was not used and the measures that need it "
+                    "are left empty. Check the value and its unit (a decimal point, mm or cm).",
                     name,
                     v,
                 )
@@ -126,8 +134,8 @@ def ranges(check: _Check) -> None:
                     (v < f.typical[0]) | (v > f.typical[1]),
                     f"{name}_unusual",
                     "warning",
-                    f"{f.meaning} outside the usual adult {f.typical[0]:g}-{f.typical[1]:g} "
-                    f"{f.unit}; used, but check the value and its unit.",
+                    f"{f.meaning.rstrip('.')} is outside the usual adult {f.typical[0]:g}-"
+                    f"{f.typical[1]:g} {f.unit}. It was used; check the value and its unit.",
                     name,
                     v,
                 )
@@ -165,7 +173,8 @@ def walls(check: _Check) -> None:
                     s < d,
                     code,
                     "warning",
-                    f"{BY_NAME[sys_name].meaning} is thinner than at end-diastole; walls thicken as "
+                    f"{BY_NAME[sys_name].meaning.rstrip('.')} is thinner than at end-diastole; "
+                    "walls thicken as "
                     "the ventricle ejects. Check the measurement.",
                     sys_name,
                     s,

@@ -7,16 +7,27 @@ Internal units are cm, kg, mmHg, mL, ms and years. Every field has two ranges in
 - ``typical``: outside it the value is possible but unusual for an adult study; it is used, and the
   row gets a warning finding, because it is the commonest sign of a unit or typing error.
 
-The ranges are broad bounds from clinical experience (common practice, no source); they are screening
-limits, not reference values. Reference values live in ``reference_tables/``.
+Each field's ``range_source`` says where its ranges come from: mostly broad bounds from clinical
+experience (common practice, no source). They are screening limits, not reference values;
+reference values live in ``reference_tables/``. A linear LV dimension outside its hard range (an
+LVIDd of 2.6 cm, a PWd of 0.11 cm: a decimal point or unit typed wrong) never reaches a class.
 """
 
 from __future__ import annotations
 
 import re
+import unicodedata
 from dataclasses import dataclass, field
 
 SEXES: tuple[str, ...] = ("F", "M")  # the canonical sex codes, women first
+
+
+_LINEAR_RANGES = (
+    "hard: beyond what an adult left ventricle measured by M-mode or 2D can be, or where the "
+    "linear mass formula no longer applies (common practice, no source); typical: wide enough to "
+    "hold the guideline normal ranges and hypertrophy or dilatation grades (Lang RM et al., J Am "
+    "Soc Echocardiogr 2015;28:1; Lang RM et al., J Am Soc Echocardiogr 2005;18:1440)"
+)
 
 
 @dataclass(frozen=True)
@@ -31,6 +42,7 @@ class Field:
     hard: tuple[float, float] | None = None
     typical: tuple[float, float] | None = None
     aliases: tuple[str, ...] = field(default_factory=tuple)
+    range_source: str = "common practice, no source"
 
 
 def _f(*args, **kwargs) -> Field:
@@ -115,8 +127,8 @@ FIELDS: tuple[Field, ...] = (
         "cm",
         "length",
         "Body height.",
-        (40, 250),
-        (130, 210),
+        (90, 250),
+        (140, 210),
         aliases=("height", "ht", "stature", "body height"),
     ),
     _f(
@@ -125,8 +137,8 @@ FIELDS: tuple[Field, ...] = (
         "kg",
         "mass",
         "Body weight.",
-        (2, 400),
-        (35, 200),
+        (20, 400),
+        (40, 200),
         aliases=("weight", "wt", "body weight", "mass kg"),
     ),
     _f(
@@ -135,7 +147,7 @@ FIELDS: tuple[Field, ...] = (
         "mmHg",
         "pressure",
         "Cuff systolic blood pressure.",
-        (40, 320),
+        (50, 300),
         (80, 230),
         aliases=(
             "sbp",
@@ -156,7 +168,7 @@ FIELDS: tuple[Field, ...] = (
         "mmHg",
         "pressure",
         "Cuff diastolic blood pressure.",
-        (10, 200),
+        (20, 180),
         (40, 130),
         aliases=(
             "dbp",
@@ -177,7 +189,7 @@ FIELDS: tuple[Field, ...] = (
         "mmHg",
         "pressure",
         "Second cuff systolic reading.",
-        (40, 320),
+        (50, 300),
         (80, 230),
         aliases=("sbp 2", "sbp2", "systolic 2"),
     ),
@@ -187,7 +199,7 @@ FIELDS: tuple[Field, ...] = (
         "mmHg",
         "pressure",
         "Second cuff diastolic reading.",
-        (10, 200),
+        (20, 180),
         (40, 130),
         aliases=("dbp 2", "dbp2", "diastolic 2"),
     ),
@@ -197,7 +209,7 @@ FIELDS: tuple[Field, ...] = (
         "mmHg",
         "pressure",
         "Third cuff systolic reading.",
-        (40, 320),
+        (50, 300),
         (80, 230),
         aliases=("sbp 3", "sbp3", "systolic 3"),
     ),
@@ -207,7 +219,7 @@ FIELDS: tuple[Field, ...] = (
         "mmHg",
         "pressure",
         "Third cuff diastolic reading.",
-        (10, 200),
+        (20, 180),
         (40, 130),
         aliases=("dbp 3", "dbp3", "diastolic 3"),
     ),
@@ -237,9 +249,10 @@ FIELDS: tuple[Field, ...] = (
         "cm",
         "length",
         "Interventricular septal thickness at end-diastole.",
-        (0.1, 4.0),
+        (0.4, 3.0),
         (0.5, 2.0),
         aliases=("ivsd", "ivs d", "ivs", "septum", "ivstd", "ivs diastole", "septal thickness"),
+        range_source=_LINEAR_RANGES,
     ),
     _f(
         "lvidd_cm",
@@ -247,9 +260,10 @@ FIELDS: tuple[Field, ...] = (
         "cm",
         "length",
         "LV internal diameter at end-diastole.",
-        (1.0, 12.0),
-        (3.0, 7.5),
+        (3.0, 10.0),
+        (3.5, 7.5),
         aliases=("lvidd", "lvid d", "lvedd", "lvdd", "lvid diastole", "edd"),
+        range_source=_LINEAR_RANGES,
     ),
     _f(
         "pwd_cm",
@@ -257,7 +271,7 @@ FIELDS: tuple[Field, ...] = (
         "cm",
         "length",
         "LV posterior wall thickness at end-diastole.",
-        (0.1, 4.0),
+        (0.4, 3.0),
         (0.5, 2.0),
         aliases=(
             "pwd",
@@ -269,6 +283,7 @@ FIELDS: tuple[Field, ...] = (
             "posterior wall",
             "pw diastole",
         ),
+        range_source=_LINEAR_RANGES,
     ),
     _f(
         "ivss_cm",
@@ -276,9 +291,10 @@ FIELDS: tuple[Field, ...] = (
         "cm",
         "length",
         "Interventricular septal thickness at end-systole.",
-        (0.1, 5.0),
-        (0.6, 2.6),
+        (0.5, 4.0),
+        (0.7, 2.6),
         aliases=("ivss", "ivs s", "ivsts", "ivs systole"),
+        range_source=_LINEAR_RANGES,
     ),
     _f(
         "lvids_cm",
@@ -286,9 +302,10 @@ FIELDS: tuple[Field, ...] = (
         "cm",
         "length",
         "LV internal diameter at end-systole.",
-        (0.5, 11.0),
-        (1.5, 6.5),
+        (1.0, 9.0),
+        (1.8, 6.5),
         aliases=("lvids", "lvid s", "lvesd", "lvds", "lvid systole", "esd"),
+        range_source=_LINEAR_RANGES,
     ),
     _f(
         "pws_cm",
@@ -296,9 +313,10 @@ FIELDS: tuple[Field, ...] = (
         "cm",
         "length",
         "LV posterior wall thickness at end-systole.",
-        (0.1, 5.0),
-        (0.6, 2.6),
+        (0.5, 4.0),
+        (0.7, 2.6),
         aliases=("pws", "lvpws", "pw s", "lvpw s", "lvpwts", "pwts", "pw systole"),
+        range_source=_LINEAR_RANGES,
     ),
     _f(
         "lvedv_ml",
@@ -387,6 +405,13 @@ NUMERIC_FIELDS: tuple[str, ...] = tuple(f.name for f in FIELDS if f.kind == "num
 LINEAR_FIELDS: tuple[str, ...] = ("ivsd_cm", "lvidd_cm", "pwd_cm", "ivss_cm", "lvids_cm", "pws_cm")
 
 
+def _fold_accents(s: str) -> str:
+    """``größe`` -> ``grosse``, ``télédiastolique`` -> ``telediastolique`` (Unicode NFKD, marks
+    dropped), so that headers in other languages match by their letters."""
+    s = s.replace("ß", "ss").replace("æ", "ae").replace("ø", "o")
+    return "".join(c for c in unicodedata.normalize("NFKD", s) if not unicodedata.combining(c))
+
+
 def normalise_header(text: object) -> str:
     """Fold a header for matching: lower case, units in brackets removed, punctuation to spaces.
 
@@ -395,16 +420,53 @@ def normalise_header(text: object) -> str:
     >>> normalise_header("IVS_d [cm]")
     'ivs d'
     """
-    s = str(text).strip().lower()
+    s = _fold_accents(str(text).strip().lower())
     s = re.sub(r"[\(\[\{].*?[\)\]\}]", " ", s)
     s = re.sub(r"[^0-9a-z]+", " ", s)
     return " ".join(s.split())
 
 
+# Headers of the body and pressure fields in the languages labs export in (German, French, Spanish,
+# Italian, Dutch, Portuguese); the LV dimensions are read by their words (``schema.headers``).
+OTHER_LANGUAGES: dict[str, tuple[str, ...]] = {
+    "patient_id": ("patienten id", "patientennummer", "n patient", "numero patient", "ipp",
+                   "id paziente", "codice paziente", "numero de historia", "nhc", "patientnummer"),
+    "study_id": ("untersuchung", "untersuchungsnummer", "examen", "n examen", "numero examen",
+                 "esame", "estudio", "onderzoek"),
+    "study_date": ("datum", "untersuchungsdatum", "date examen", "date de l examen", "fecha",
+                   "fecha estudio", "data esame", "data", "datum onderzoek"),
+    "sex": ("geschlecht", "sexe", "sexo", "sesso", "geslacht", "genre"),
+    "age_years": ("alter", "age ans", "edad", "eta", "leeftijd", "idade"),
+    "height_cm": ("grosse", "korpergrosse", "taille", "talla", "altura", "altezza", "statura",
+                  "lengte", "estatura"),
+    "weight_kg": ("gewicht", "korpergewicht", "poids", "peso", "massa corporea"),
+    "sbp_mmhg": ("systolischer blutdruck", "pas", "pression systolique", "pression arterielle systolique",
+                 "presion sistolica", "pressione sistolica", "sys rr", "rr sys", "rr systolisch"),
+    "dbp_mmhg": ("diastolischer blutdruck", "pad", "pression diastolique",
+                 "pression arterielle diastolique", "presion diastolica", "pressione diastolica",
+                 "dia rr", "rr dia", "rr diastolisch"),
+    "hr_bpm": ("herzfrequenz", "puls", "fc", "frequence cardiaque", "frecuencia cardiaca",
+               "frequenza cardiaca", "hartfrequentie"),
+}  # fmt: skip
+
+
+# Headers of one column holding both cuff pressures as "128/82": read into sbp_mmhg and dbp_mmhg.
+PRESSURE_PAIR_HEADERS: frozenset[str] = frozenset(
+    {"bp", "blood pressure", "bp mmhg", "cuff bp", "nibp", "arterial pressure", "blutdruck", "rr",
+     "pression arterielle", "tension arterielle", "ta", "pa", "presion arterial", "pa mmhg",
+     "pressione arteriosa", "bloeddruk", "pressao arterial", "bp sys dia", "bp systolic diastolic"}
+)  # fmt: skip
+
+
 def _alias_index() -> dict[str, str]:
     index: dict[str, str] = {}
     for f in FIELDS:
-        for name in (f.name, f.name.replace("_", " "), *f.aliases):
+        for name in (
+            f.name,
+            f.name.replace("_", " "),
+            *f.aliases,
+            *OTHER_LANGUAGES.get(f.name, ()),
+        ):
             index.setdefault(normalise_header(name), f.name)
             index.setdefault(normalise_header(name).replace(" ", ""), f.name)
     return index

@@ -69,6 +69,9 @@ def match_header(header: object, columns: dict[str, str] | None = None) -> tuple
     hit = schema.ALIASES.get(key) or schema.ALIASES.get(key.replace(" ", ""))
     if hit:
         return hit, "alias"
+    hit = _by_words(key)
+    if hit:
+        return hit
     # a unit written as a trailing word or after a comma: "lvidd mm", "height, in"
     words = key.split()
     if len(words) >= 2 and units.normalise_unit(words[-1]) is not None:
@@ -79,6 +82,168 @@ def match_header(header: object, columns: dict[str, str] | None = None) -> tuple
         if hit:
             return hit, "alias"
     return None, ""
+
+
+# Descriptive headers, in English and the languages labs export in, read by their words: a wall or
+# the cavity, and the phase of the cycle. Words are matched after accents are folded
+# (``télédiastolique`` -> ``telediastolique``). Vocabulary of the trade (common practice, no source).
+_SEPTUM = {
+    "septum",
+    "septal",
+    "ivs",
+    "interventricular",
+    "septo",
+    "setto",
+    "tabique",
+    "septale",
+    "septums",
+    "kammerseptum",
+    "interventriculaire",
+    "interventricolare",
+}
+_POSTERIOR = {
+    "posterior",
+    "pw",
+    "lvpw",
+    "inferolateral",
+    "hinterwand",
+    "posterieure",
+    "posteriore",
+    "posterieur",
+    "hinterwanddicke",
+}
+_CAVITY = {
+    "lvid",
+    "internal",
+    "cavity",
+    "intern",
+    "interne",
+    "interno",
+    "cavite",
+    "cavidad",
+    "durchmesser",
+    "diametre",
+    "diametro",
+    "diameter",
+    "dimension",
+    "dimensione",
+}
+_LV = {
+    "lv",
+    "left",
+    "ventricle",
+    "ventricular",
+    "vg",
+    "lk",
+    "vi",
+    "ventricule",
+    "ventricolo",
+    "ventriculo",
+    "ventrikel",
+    "linksventrikular",
+    "lvid",
+    "lvidd",
+    "lvids",
+}
+_NOT_LV = {
+    "aorta",
+    "aortic",
+    "root",
+    "la",
+    "atrium",
+    "atrial",
+    "rv",
+    "right",
+    "ao",
+    "annulus",
+    "outflow",
+    "lvot",
+    "rvot",
+    "ra",
+    "mitral",
+    "tricuspid",
+    "ivc",
+    "vena",
+}
+_DIASTOLE = {
+    "diastole",
+    "diastolic",
+    "diast",
+    "dias",
+    "d",
+    "ed",
+    "enddiastolic",
+    "telediastolique",
+    "diastolique",
+    "diastolisch",
+    "enddiastolisch",
+    "diastolico",
+    "telediastolico",
+    "diastolica",
+    "telediastolica",
+    "edd",
+}
+_SYSTOLE = {
+    "systole",
+    "systolic",
+    "syst",
+    "sys",
+    "s",
+    "es",
+    "endsystolic",
+    "telesystolique",
+    "systolique",
+    "systolisch",
+    "endsystolisch",
+    "sistolico",
+    "telesistolico",
+    "sistolica",
+    "telesistolica",
+    "esd",
+}
+_FIELD_OF = {
+    ("septum", "d"): "ivsd_cm",
+    ("septum", "s"): "ivss_cm",
+    ("posterior", "d"): "pwd_cm",
+    ("posterior", "s"): "pws_cm",
+    ("cavity", "d"): "lvidd_cm",
+    ("cavity", "s"): "lvids_cm",
+}  # fmt: skip
+
+
+def _by_words(key: str) -> tuple[str, str] | None:
+    """``("lvidd_cm", "words")`` for "LV internal dimension diastole"; ``"words, phase assumed"``
+    when a wall or the cavity is named without a phase (end-diastole, where they are measured by
+    convention); None when the words do not name one wall or the cavity, or name another chamber."""
+    words = set(key.split()) | {key.replace(" ", "")}
+    if {"post", "wall"} <= words:  # "Post. wall"
+        words.add("posterior")
+    if words & _NOT_LV:
+        return None
+    parts = [
+        name
+        for name, vocab in (("septum", _SEPTUM), ("posterior", _POSTERIOR), ("cavity", _CAVITY))
+        if words & vocab
+    ]
+    if parts == ["septum", "posterior"] or len(parts) != 1:
+        return None
+    part = parts[0]
+    if part == "cavity" and not (
+        words & _LV or words & {"internal", "intern", "interne", "interno"}
+    ):
+        return None  # "diameter" alone may be any chamber's or vessel's
+    phases = {p for p, vocab in (("d", _DIASTOLE), ("s", _SYSTOLE)) if words & vocab}
+    if len(phases) > 1:
+        return None
+    if not phases:
+        if (
+            words & {"thickness", "dicke", "epaisseur", "spessore", "grosor", "espesor"}
+            or part != "cavity"
+            or words & _CAVITY
+        ):
+            return _FIELD_OF[(part, "d")], "words, phase assumed"
+        return None
+    return _FIELD_OF[(part, phases.pop())], "words"
 
 
 def header_score(headers, columns: dict | None = None) -> int:

@@ -1,0 +1,92 @@
+"""Which measures a study list's columns allow, said loudly: for each missing input column, the
+measures it stops, the closest unmapped headers and the ``--columns`` line that would map them.
+
+Read from the output registry (each output names its inputs), so that a new measure is covered by
+its row there.
+"""
+
+from __future__ import annotations
+
+import difflib
+
+from wallstress import findings as fnd
+from wallstress.errors import InputError
+from wallstress.schema import fields as schema
+from wallstress.schema.outputs import OUTPUTS
+
+# The inputs whose absence is an error (no LV mass, RWT or class) rather than a warning.
+LV_DIMENSIONS: tuple[str, ...] = ("ivsd_cm", "lvidd_cm", "pwd_cm")
+_ALWAYS_OPTIONAL = frozenset({"age_years", "hr_bpm", "ejection_time_ms"})
+
+
+def stopped_by(missing_field: str) -> list[str]:
+    """The output columns (registry labels) that need ``missing_field``."""
+    return [o.label for o in OUTPUTS if missing_field in o.inputs and o.is_number]
+
+
+def suggestions(field: str, unmapped, limit: int = 2) -> list[str]:
+    """The unmapped headers closest to a field's names (difflib ratio over folded text)."""
+    f = schema.BY_NAME[field]
+    names = [schema.normalise_header(n) for n in (field, *f.aliases)] + [
+        schema.normalise_header(f.meaning)
+    ]
+    scored = []
+    for header in unmapped:
+        h = schema.normalise_header(header)
+        if not h:
+            continue
+        best = max(difflib.SequenceMatcher(None, h, n).ratio() for n in names)
+        if best >= 0.45:
+            scored.append((best, str(header)))
+    return [h for _, h in sorted(scored, reverse=True)[:limit]]
+
+
+def missing_inputs(columns, unmapped) -> list:
+    """File-level findings (row -1), one per input column that stops a measure."""
+    have = set(columns)
+    needed = {f for o in OUTPUTS for f in o.inputs if o.is_number} - _ALWAYS_OPTIONAL
+    parts = []
+    for field in sorted(needed - have, key=list(schema.BY_NAME).index):
+        stops = stopped_by(field)
+        if not stops:
+            continue
+        close = suggestions(field, unmapped)
+        hint = (
+            f" Closest unmapped column{'s' if len(close) > 1 else ''}: "
+            + ", ".join(repr(c) for c in close)
+            + f". To use it, pass --columns with a file holding the line: {close[0]},{field}"
+            if close
+            else f" Add a column {field!r} or map yours with --columns (a CSV of header,field lines)."
+        )
+        parts.append(
+            fnd.make(
+                [-1],
+                code="input_missing",
+                severity="error" if field in LV_DIMENSIONS else "warning",
+                column="",
+                field=field,
+                message=f"No column for {field} ({schema.BY_NAME[field].meaning.rstrip('.')}): "
+                f"{', '.join(stops[:6])}{' and more' if len(stops) > 6 else ''} cannot be "
+                f"computed on any row.{hint}",
+            )
+        )
+    return parts
+
+
+def require_lv_dimensions(analysis, source) -> None:
+    """Refuse a study list in which no LV dimension column was recognised: nothing it holds could
+    give a measure. The message lists its columns and how to map them."""
+    if any(f in analysis.canonical.columns for f in schema.LINEAR_FIELDS):
+        return
+    unmapped = [str(c) for c in analysis.methods.get("unmapped_columns", [])]
+    close = [c for f in LV_DIMENSIONS for c in suggestions(f, unmapped, 1)]
+    hint = (
+        f"; the closest are {', '.join(repr(c) for c in dict.fromkeys(close))}"
+        if close
+        else f"; its unrecognised columns are {', '.join(repr(c) for c in unmapped[:8])}"
+    )
+    raise InputError(
+        f"{source}: no LV dimension column was recognised (IVSd, LVIDd, PWd, LVIDs...), so no "
+        f"measure can be computed{hint}. Map them with --columns (a CSV with lines such as "
+        "'your header,lvidd_cm')"
+    )

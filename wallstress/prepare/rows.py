@@ -1,0 +1,74 @@
+"""Rows of a study list that are not studies: wholly blank rows, trailers and totals ("End of
+export: 40 studies", "Total") and one-cell footnotes ("* measured by ...").
+
+Such rows still come out, in their place, but without measures, without flags and without being
+counted as studies; one file-level finding names them. Vectorised: only rows with at most two
+filled cells are looked at as text.
+"""
+
+from __future__ import annotations
+
+import re
+
+import numpy as np
+import pandas as pd
+
+from wallstress import findings as fnd
+from wallstress.schema import fields as schema
+
+_TRAILER = re.compile(
+    r"^\s*(?:total|totals|sum|end\s+of|n\s*=|count|average|mean|median|footnote|note|notes|"
+    r"source|generated|exported|export|printed|page\s+\d|\*|#\s|summe|gesamt|fin\s+de|nombre)",
+    re.IGNORECASE,
+)
+
+
+def non_study_rows(raw: pd.DataFrame, canonical: pd.DataFrame, blanked=()) -> np.ndarray:
+    """True for each row that is blank, or a trailer or footnote with no LV dimension.
+
+    ``blanked``: rows whose cells the reader emptied (error values, uncalculated formulas);
+    they had content and stay studies."""
+    n = len(raw)
+    if n == 0:
+        return np.zeros(0, dtype=bool)
+    filled = raw.notna().to_numpy()
+    n_filled = filled.sum(axis=1)
+    lv = [c for c in schema.LINEAR_FIELDS if c in canonical.columns]
+    has_lv = (
+        np.isfinite(canonical[lv].to_numpy(dtype=float)).any(axis=1)
+        if lv
+        else np.zeros(n, dtype=bool)
+    )
+    out = n_filled == 0
+    # a trailer or total names itself in its first cell and fills few others ("Total,,,,40");
+    # a footnote is one cell of several words with no LV dimension
+    for i in np.flatnonzero((n_filled > 0) & (n_filled <= 3)):
+        first = raw.iat[i, int(np.argmax(filled[i]))]
+        if not isinstance(first, str):
+            continue
+        if _TRAILER.match(first) or (
+            n_filled[i] == 1 and not has_lv[i] and len(first.split()) >= 3
+        ):
+            out[i] = True
+    out[np.asarray(blanked, dtype="int64")] = False
+    return out
+
+
+def not_study_finding(mask: np.ndarray, raw: pd.DataFrame) -> pd.DataFrame:
+    """One file-level note naming the rows that are not studies (1-based data rows)."""
+    rows = np.flatnonzero(mask)
+    shown = ", ".join(str(r + 1) for r in rows[:10]) + (" ..." if len(rows) > 10 else "")
+    example = next(
+        (str(raw.iat[r, int(np.argmax(raw.iloc[r].notna().to_numpy()))]) for r in rows
+         if raw.iloc[r].notna().any()),
+        "",
+    )  # fmt: skip
+    what = f" (for example {example[:60]!r})" if example else ""
+    return fnd.make(
+        [-1],
+        code="not_a_study",
+        severity="note",
+        message=f"{len(rows)} row(s) of the list are not studies: blank rows, trailers or "
+        f"footnotes{what}, at data row(s) {shown}. They are kept in their place without measures "
+        "and are not counted as studies.",
+    )
