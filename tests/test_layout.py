@@ -15,7 +15,8 @@ import pytest
 import tomllib
 
 import wallstress
-from wallstress.schema.outputs import BY_OUTPUT, OUT, OUTPUT_COLUMNS, OUTPUTS
+from wallstress.schema.outputs import BY_OUTPUT, OUTPUT_COLUMNS, OUTPUTS
+from wallstress.schema.vocabulary import OUT
 
 ROOT = Path(__file__).resolve().parents[1]
 PACKAGE = ROOT / "wallstress"

@@ -27,6 +27,7 @@ from wallstress.jobs import (
     track_file,
 )
 from wallstress.options import Options
+from wallstress.prepare.dates import DATE_ORDERS
 from wallstress.schema.units import UNIT_CHOICES
 from wallstress.schema.vocabulary import CLINICAL_CAUTION, METHOD_CHOICES
 from wallstress.tracking.visits import SAME_DAY_RULES
@@ -60,6 +61,7 @@ EsPressure = _choices("EsPressure", METHOD_CHOICES["es_pressure"])
 StressConstant = _choices("StressConstant", METHOD_CHOICES["stress_constant"])
 Units = _choices("Units", UNIT_CHOICES)
 SameDay = _choices("SameDay", SAME_DAY_RULES)
+DateOrder = _choices("DateOrder", DATE_ORDERS)
 
 
 def _one_line(text: str) -> str:
@@ -127,6 +129,7 @@ def _options(
     rwt: Rwt | None = None,
     es_pressure: EsPressure | None = None,
     stress_constant: StressConstant | None = None,
+    date_order: DateOrder | None = None,
 ) -> Options:
     chosen = {
         "bsa_method": bsa,
@@ -134,6 +137,7 @@ def _options(
         "rwt_method": rwt,
         "es_pressure": es_pressure,
         "stress_constant": stress_constant,
+        "date_order": date_order,
     }
     return Options(
         **{k: v.value for k, v in chosen.items() if v is not None},
@@ -166,6 +170,11 @@ SC = typer.Option(
     StressConstant(DEFAULTS.stress_constant),
     "--stress-constant",
     help="Published constants (0.334, 1.35) or exact mmHg->kdyn/cm2.",
+)
+DATE_ORDER = typer.Option(
+    DateOrder(DEFAULTS.date_order),
+    "--date-order",
+    help="Dates like 04/03/2021: auto (by the column), dmy or mdy.",
 )
 UNITS = typer.Option(
     Units(DEFAULTS.units), "--units", help="Unit of LV dimensions when headers do not say."
@@ -208,6 +217,7 @@ def analyse(
     es_pressure: EsPressure = ESP,
     stress_constant: StressConstant = SC,
     units: Units = UNITS,
+    date_order: DateOrder = DATE_ORDER,
     sheet: str = SHEET,
     columns: Path = COLUMNS,
     in_place: bool = typer.Option(
@@ -229,7 +239,17 @@ def analyse(
     """Every measure for every study, with flags and a methods record."""
 
     options = _guard(
-        _options, reference, units, sheet, columns, bsa, mass, rwt, es_pressure, stress_constant
+        _options,
+        reference,
+        units,
+        sheet,
+        columns,
+        bsa,
+        mass,
+        rwt,
+        es_pressure,
+        stress_constant,
+        date_order,
     )
     if chunk_rows:
         _analyse_in_chunks(studies, out, options, chunk_rows, escape_formulas, quiet, strict)
@@ -313,13 +333,14 @@ def track(
     ),
     escape_formulas: bool = ESCAPE,
     units: Units = UNITS,
+    date_order: DateOrder = DATE_ORDER,
     sheet: str = SHEET,
     columns: Path = COLUMNS,
     quiet: bool = QUIET,
 ):
     """Per-patient change against reproducibility, slopes and geometry transitions."""
 
-    options = _guard(_options, reference, units, sheet, columns)
+    options = _guard(_options, reference, units, sheet, columns, date_order=date_order)
     result = _guard(
         track_file,
         studies,
@@ -346,13 +367,14 @@ def report(
         None, "--figures", help="Also write each figure as PNG and SVG here."
     ),
     units: Units = UNITS,
+    date_order: DateOrder = DATE_ORDER,
     sheet: str = SHEET,
     columns: Path = COLUMNS,
     quiet: bool = QUIET,
 ):
     """Pictures and per-patient pages in one HTML file that works offline."""
 
-    options = _guard(_options, reference, units, sheet, columns)
+    options = _guard(_options, reference, units, sheet, columns, date_order=date_order)
     path = _guard(report_file, studies, out, options, figures_dir=figures, inputs=(columns,))
     if not quiet:
         typer.echo(f"wrote {path}")
@@ -412,13 +434,19 @@ def calibrate(
         "--allow-small",
         help="Fit from 40 or more per sex, marking the rows as small-sample.",
     ),
+    keep_implausible_line: bool = typer.Option(
+        False,
+        "--keep-implausible-line",
+        help="Write a stress-shortening line whose slope is not negative (marked implausible).",
+    ),
     units: Units = UNITS,
+    date_order: DateOrder = DATE_ORDER,
     sheet: str = SHEET,
     columns: Path = COLUMNS,
 ):
     """Your lab's own reference limits and stress-shortening line from its healthy subjects."""
 
-    options = _guard(_options, base, units, sheet, columns)
+    options = _guard(_options, base, units, sheet, columns, date_order=date_order)
     result = _guard(
         calibrate_file,
         normals,
@@ -426,6 +454,7 @@ def calibrate(
         options,
         min_per_sex=min_per_sex,
         allow_small=allow_small,
+        keep_implausible_line=keep_implausible_line,
         inputs=(columns,),
     )
     for line in result.notes:

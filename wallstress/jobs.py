@@ -229,16 +229,17 @@ def calibrate_file(
     *,
     min_per_sex: int = 120,
     allow_small: bool = False,
+    keep_implausible_line: bool = False,
 ) -> JobResult:
     """A lab's own reference set from its healthy subjects."""
 
     options = options or Options()
     check_outputs([Path(out)], [path])
     with protected_inputs(Path(path), *reference_files(options)):
-        return _calibrate(path, out, options, min_per_sex, allow_small)
+        return _calibrate(path, out, options, min_per_sex, allow_small, keep_implausible_line)
 
 
-def _calibrate(path, out, options, min_per_sex, allow_small) -> JobResult:
+def _calibrate(path, out, options, min_per_sex, allow_small, keep_implausible_line) -> JobResult:
     from wallstress.calibration.fit import calibrate
     from wallstress.calibration.set_writer import write_set
 
@@ -250,6 +251,7 @@ def _calibrate(path, out, options, min_per_sex, allow_small) -> JobResult:
         min_per_sex=min_per_sex,
         allow_small=allow_small,
         source_file=Path(path).name,
+        keep_implausible_line=keep_implausible_line,
     )
     written = write_set(cal, Path(out))
     return JobResult(analysis, [written], list(cal.notes))

@@ -32,6 +32,9 @@ class Options:
     units : str
         Units of linear dimensions when the header does not say: ``auto`` (inferred per column
         from plausible ranges, with a finding), ``mm`` or ``cm``.
+    date_order : str
+        How dates such as 04/03/2021 are read: ``auto`` (by the column's unambiguous dates;
+        day-first, with a column finding, when none shows the order), ``dmy`` or ``mdy``.
     columns : dict
         The lab's own header -> canonical field name (``--columns`` file).
     sheet : str or None
@@ -45,6 +48,7 @@ class Options:
     es_pressure: str = "cuff_sbp"
     stress_constant: str = "published"
     units: str = "auto"
+    date_order: str = "auto"
     columns: dict = field(default_factory=dict)
     sheet: str | None = None
 

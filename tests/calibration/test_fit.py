@@ -271,6 +271,30 @@ def test_positive_slope_gets_a_note():
     frame["midwall_fs_pct"] = 10 + 0.03 * frame["cess_kdyn_cm2"]
     cal = calibrate(frame)
     assert any("slope is not negative" in n for n in cal.notes)
+    # refused as a usable line: no line rows of the lab, the warning travels with the set
+    lab_line = cal.rows[
+        (cal.rows["measure"] == "midwall_stress_line") & (cal.rows["verified"] == "lab")
+    ]
+    assert lab_line.empty and cal.line == {}
+    assert any("--keep-implausible-line" in n for n in cal.notes)
+    warnings = cal.rows[cal.rows["measure"] == "calibration_warning"]["note"]
+    assert any("not negative" in w for w in warnings)
+    kept = calibrate(frame, keep_implausible_line=True)
+    marked = kept.rows[
+        (kept.rows["measure"] == "midwall_stress_line") & (kept.rows["verified"] == "lab")
+    ]
+    assert len(marked) and marked["note"].str.contains("IMPLAUSIBLE").all()
+
+
+def test_a_sets_warnings_travel_into_the_methods_record(tmp_path):
+    """An analysis with a lab set that carries calibration warnings says so in its methods record
+    and cautions (common practice, no source)."""
+    frame = synthetic_frame(150, seed=11)
+    frame["midwall_fs_pct"] = 10 + 0.03 * frame["cess_kdyn_cm2"]
+    path = write_set(calibrate(frame, lab_name="lab"), tmp_path / "lab.csv")
+    m = analyse_with_findings(synthetic_studies(5), Options(reference=str(path))).methods
+    assert any("not negative" in w for w in m["reference_set"]["warnings"])
+    assert any("warns" in c for c in m["cautions"])
 
 
 # ---------------------------------------------------------------------------------------------
@@ -402,7 +426,9 @@ def test_pipeline_uses_the_lab_thresholds(lab_analysis, tmp_path):
     """The pipeline with Options(reference=<lab set>) grades LVMI by the lab's own limit and predicts
     midwall shortening from the lab's line (intercept + slope * cESS; de Simone 1994 method, checked).
     Subjects are invented adults run through the whole pipeline."""
-    cal = calibrate(lab_analysis, lab_name="synthetic_lab")
+    # the invented subjects' stress and shortening come from the same random geometry, not from
+    # physiology, so their line may rise: kept on request here, to test that the pipeline uses it
+    cal = calibrate(lab_analysis, lab_name="synthetic_lab", keep_implausible_line=True)
     path = write_set(cal, tmp_path / "synthetic_lab.csv")
     frame = lab_analysis.frame()
     ref = analyse_with_findings(synthetic_studies(150), Options(reference=str(path))).frame()

@@ -28,12 +28,12 @@ import pandas as pd
 
 from wallstress.analysis.references import ReferenceSet
 from wallstress.schema.fields import SEXES
-from wallstress.schema.outputs import OUT
 from wallstress.schema.vocabulary import (
     CONCENTRIC_HYPERTROPHY,
     CONCENTRIC_REMODELLING,
     ECCENTRIC_HYPERTROPHY,
     NORMAL,
+    OUT,
 )
 
 # code order: 1 + mass increased * 2 + rwt increased

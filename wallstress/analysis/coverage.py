@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import difflib
 
+import numpy as np
+
 from wallstress import findings as fnd
 from wallstress.errors import InputError
 from wallstress.schema import fields as schema
@@ -19,9 +21,17 @@ LV_DIMENSIONS: tuple[str, ...] = ("ivsd_cm", "lvidd_cm", "pwd_cm")
 _ALWAYS_OPTIONAL = frozenset({"age_years", "hr_bpm", "ejection_time_ms"})
 
 
+# The measures a reader looks for first, named first in a message.
+_FIRST = ("LV mass", "RWT", "Geometry", "LVMI/BSA", "mESS", "cESS", "FS", "BSA", "Midwall FS")
+
+
 def stopped_by(missing_field: str) -> list[str]:
-    """The output columns (registry labels) that need ``missing_field``."""
-    return [o.label for o in OUTPUTS if missing_field in o.inputs and o.is_number]
+    """The measures and classes (registry labels) that need ``missing_field``, the main ones
+    first."""
+    labels = [
+        o.label for o in OUTPUTS if missing_field in o.inputs and (o.is_number or o.unit == "class")
+    ]
+    return sorted(labels, key=lambda x: _FIRST.index(x) if x in _FIRST else len(_FIRST))
 
 
 def suggestions(field: str, unmapped, limit: int = 2) -> list[str]:
@@ -90,3 +100,45 @@ def require_lv_dimensions(analysis, source) -> None:
         f"measure can be computed{hint}. Map them with --columns (a CSV with lines such as "
         "'your header,lvidd_cm')"
     )
+
+
+# A blank cell of these stops measures on its row; each such row gets a finding that says which.
+KEY_INPUTS: tuple[str, ...] = (
+    "height_cm", "weight_kg", "sbp_mmhg", "ivsd_cm", "lvidd_cm", "pwd_cm", "lvids_cm", "pws_cm"
+)  # fmt: skip
+
+
+def blank_inputs(canonical, earlier, labels: dict | None = None) -> list:
+    """A finding on each row where a key input's column exists but the row's value is missing,
+    naming the measures left empty, so that an empty ``flags`` cell means every measure the row's
+    inputs allow was computed. Rows whose value has its own finding already (impossible, not a
+    number...) are not told twice."""
+    said: dict[str, set] = {}
+    for part in earlier:
+        if part is None or not len(part):
+            continue
+        for field, rows in part.groupby("field", observed=True)["row"]:
+            said.setdefault(str(field), set()).update(rows.tolist())
+    parts = []
+    for field in KEY_INPUTS:
+        if field not in canonical.columns:
+            continue
+        blank = np.isnan(canonical[field].to_numpy(dtype=float))
+        if not blank.any():
+            continue
+        if said.get(field):
+            blank[[r for r in said[field] if 0 <= r < len(blank)]] = False
+        stops = stopped_by(field)
+        f = schema.BY_NAME[field]
+        parts.append(
+            fnd.make(
+                np.flatnonzero(blank),
+                code=f"{field}_blank",
+                severity="warning" if field in (*LV_DIMENSIONS, "sbp_mmhg") else "note",
+                column=str((labels or {}).get(field, field)),
+                field=field,
+                message=f"{f.meaning.rstrip('.')} is blank, so {', '.join(stops[:4])}"
+                f"{' and more' if len(stops) > 4 else ''} could not be computed for this study.",
+            )
+        )
+    return parts

@@ -19,6 +19,7 @@ from wallstress import findings as fnd
 from wallstress.analysis import classify
 from wallstress.formulas import body_size, mass, shortening, stress, volumes
 from wallstress.options import Options
+from wallstress.schema.outputs import OUTPUTS
 
 
 @dataclass
@@ -199,6 +200,7 @@ def grades(m: Measures) -> None:
     """Severity grades of the mass index, RWT, LVIDd and the walls by the set's partitions."""
     for col, measure, values in (
         ("lvmi_grade", "lvmi_bsa_g_m2", m.out["lvmi_bsa_g_m2"]),
+        ("lvmi_h27_grade", "lvmi_h27_g_m2_7", m.out["lvmi_h27_g_m2_7"]),
         ("rwt_grade", "rwt", m.out["rwt"]),
         ("lvidd_grade", "lvidd_cm", m.get("lvidd_cm")),
         ("ivsd_grade", "ivsd_cm", m.get("ivsd_cm")),
@@ -329,6 +331,25 @@ def appropriateness(m: Measures) -> None:
     }
 
 
+def plausibility(m: Measures) -> None:
+    """A warning where a result is far outside physiology (the registry's ``plausible`` range):
+    one of its inputs is probably mistyped, even though each was within its own range."""
+    for out in OUTPUTS:
+        if out.plausible is None or out.name not in m.out:
+            continue
+        lo, hi = out.plausible
+        v = np.asarray(m.out[out.name], dtype=float)
+        with np.errstate(invalid="ignore"):
+            m.flag(
+                (v < lo) | (v > hi),
+                f"{out.name}_implausible",
+                "warning",
+                f"{out.label} is outside {lo:g}-{hi:g} {out.unit}, far outside physiology: check the "
+                f"measurements it comes from ({', '.join(out.inputs)}).",
+                out.name,
+            )
+
+
 # In order: a group reads only what the groups before it wrote.
 GROUPS = (
     bsa,
@@ -342,4 +363,5 @@ GROUPS = (
     midwall,
     fibre_velocity,
     appropriateness,
+    plausibility,
 )

@@ -86,6 +86,7 @@ def build_methods(
             "title": refset.title,
             "path": refset.path,
             "geometry_mass_index": refset.mass_index,
+            "warnings": list(getattr(refset, "warnings", [])),
             "rows": refset.as_records(),
         },
         "formulas": formula_rows,
@@ -100,7 +101,8 @@ def build_methods(
             "findings": int(len(findings)),
         },
         "unverified": unverified,
-        "cautions": list(CAUTIONS),
+        "cautions": list(CAUTIONS)
+        + [f"The reference set {refset.name} warns: {w}" for w in getattr(refset, "warnings", [])],
     }
 
 

@@ -15,7 +15,7 @@ from pandas.api.types import union_categoricals
 
 from wallstress import __version__
 from wallstress import findings as fnd
-from wallstress.analysis.coverage import missing_inputs
+from wallstress.analysis.coverage import blank_inputs, missing_inputs
 from wallstress.analysis.measures import compute
 from wallstress.analysis.methods import build_methods
 from wallstress.analysis.references import load_set
@@ -24,9 +24,9 @@ from wallstress.options import Options
 from wallstress.prepare.mapping import map_columns
 from wallstress.prepare.rows import non_study_rows, not_study_finding
 from wallstress.prepare.validate import validate_parts
-from wallstress.schema.outputs import OUT, OUTPUT_COLUMNS
+from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.schema.units import UNIT_CHOICES
-from wallstress.schema.vocabulary import METHOD_CHOICES
+from wallstress.schema.vocabulary import METHOD_CHOICES, OUT
 
 # Large tables are computed in row partitions, one thread each: every measure is a function of its
 # own row, numpy releases the GIL inside its array loops, so the partitions run on separate cores
@@ -95,8 +95,9 @@ def analyse_with_findings(
     # every step's findings joined once, in step order (within a row: reader, mapping, validation,
     # measures), sorted by row
     missing = missing_inputs(mapped.canonical.columns, mapped.unmapped)
+    blanks = blank_inputs(canonical, [prior_findings, mapped.findings, *vparts], labels)
     skip = non_study_rows(df, mapped.canonical, blanked=_blanked_by_reader(prior_findings))
-    parts = [prior_findings, mapped.findings, *missing, *vparts, *cparts]
+    parts = [prior_findings, mapped.findings, *missing, *vparts, *blanks, *cparts]
     if skip.any():  # not studies: no flags, one note
         parts = [_without_rows(p, skip) for p in parts] + [not_study_finding(skip, df)]
     findings = fnd.concat(parts, categorical=True)

@@ -28,7 +28,7 @@ from wallstress.bundled import data_dir
 from wallstress.errors import ReferenceSetError
 from wallstress.options import Options
 from wallstress.schema.fields import SEXES
-from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import OUT
 
 SET_COLUMNS = (
     "kind",
@@ -133,6 +133,14 @@ class ReferenceSet:
         self._coefficients: dict[str, dict[str, Coefficient]] = {}  # model -> its coefficients
         settings = {r.measure: _text(r.note) for r in rows[rows["kind"] == "setting"].itertuples()}
         self.title = settings.get("title", name)
+        # warnings a calibration wrote into the set (a line not written, a small sample...): they
+        # travel into every analysis that uses the set (methods record, report)
+        self.warnings = [
+            _text(r.note)
+            for r in rows[
+                (rows["kind"] == "setting") & (rows["measure"] == "calibration_warning")
+            ].itertuples()
+        ]
         mass_index = settings.get("geometry_mass_index", "")
         if not mass_index:
             have = set(rows.loc[rows["kind"] == "cutoff", "measure"])

@@ -77,8 +77,7 @@ from wallstress.calibration.normals import (
     _too_few_message,
 )
 from wallstress.errors import InputError
-from wallstress.schema.outputs import OUT
-from wallstress.schema.vocabulary import CLINICAL_CAUTION
+from wallstress.schema.vocabulary import CLINICAL_CAUTION, OUT
 
 FITTED_MEASURES: tuple[tuple[str, str], ...] = (
     (OUT.lvmi_bsa_g_m2, "g/m2"),
@@ -134,6 +133,7 @@ def calibrate(
     allow_small: bool = False,
     rwt_pooled: bool = True,
     source_file: str | None = None,
+    keep_implausible_line: bool = False,
 ) -> Calibration:
     """A lab's own reference set from the analysed study list of its healthy subjects.
 
@@ -159,6 +159,9 @@ def calibrate(
         one per sex.
     source_file : str, optional
         File name of the normals, written into each row's source (default: ``lab_name``).
+    keep_implausible_line : bool
+        Write a stress-shortening line whose slope is not negative (marked implausible); by
+        default such a line is not written and the base set's line is kept.
 
     Returns
     -------
@@ -209,27 +212,13 @@ def calibrate(
     )
     line: dict = {}
     if have_line:
-        line, line_set_rows = line_rows(frame, usable, required, label, stamp, notes)
+        line, line_set_rows = line_rows(
+            frame, usable, required, label, stamp, notes, keep_implausible_line
+        )
         lab_rows += line_set_rows
     copied = copied_rows(base, line, fitted, kept)
 
     n_total = sum(counts.values())
-    settings = [
-        set_row(
-            "setting",
-            "title",
-            note=f"{lab_name} own limits (n={n_total}: {counts['F']} F, {counts['M']} M)",
-        ),
-        set_row("setting", "geometry_mass_index", note=base.mass_index),
-        set_row(
-            "setting",
-            "base_set",
-            note=f"{base.name} ({base.title}); rows not fitted copied with their sources",
-        ),
-        set_row("setting", "caution", note=CAUTION),
-    ]
-    rows = pd.DataFrame(settings + lab_rows + copied, columns=list(SET_COLUMNS))
-    rows["value"] = pd.to_numeric(rows["value"], errors="coerce")
 
     unverified = [c for c in copied if c["verified"] not in ("published", "lab")]
     if unverified:
@@ -250,6 +239,27 @@ def calibrate(
         "Analyse patients with the same options (BSA formula, stress constant, ES pressure) as these "
         "normals, or the lab's limits and line do not apply."
     )
+    settings = [
+        set_row(
+            "setting",
+            "title",
+            note=f"{lab_name} own limits (n={n_total}: {counts['F']} F, {counts['M']} M)",
+        ),
+        set_row("setting", "geometry_mass_index", note=base.mass_index),
+        set_row(
+            "setting",
+            "base_set",
+            note=f"{base.name} ({base.title}); rows not fitted copied with their sources",
+        ),
+        set_row("setting", "caution", note=CAUTION),
+        *(
+            set_row("setting", "calibration_warning", note=n)
+            for n in notes
+            if any(w in n for w in ("not fitted", "not negative", "small sample", "dropped"))
+        ),
+    ]
+    rows = pd.DataFrame(settings + lab_rows + copied, columns=list(SET_COLUMNS))
+    rows["value"] = pd.to_numeric(rows["value"], errors="coerce")
     notes.append(CAUTION)
     summary_df = pd.DataFrame(
         summary,

@@ -19,7 +19,7 @@ from wallstress.calibration.limit_stats import (
 )
 from wallstress.calibration.normals import CLSI_MIN_PER_SEX
 from wallstress.schema.fields import SEXES
-from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import OUT
 
 LINE_MODEL = "midwall_stress_line"
 LINE_X, LINE_Y = OUT.cess_kdyn_cm2, OUT.midwall_fs_pct
@@ -166,9 +166,13 @@ def limit_rows(frame, usable, sex, present, required, base_cut, label, stamp, rw
     return lab_rows, summary, fitted, kept_partitions
 
 
-def line_rows(frame, usable, required, label, stamp, notes) -> tuple[dict, list[dict]]:
+def line_rows(
+    frame, usable, required, label, stamp, notes, keep_implausible: bool = False
+) -> tuple[dict, list[dict]]:
     """The lab's midwall-shortening / cESS line (both sexes pooled) as coefficient rows:
-    ``(line, rows)``, both empty when there are too few subjects with both values."""
+    ``(line, rows)``, both empty when there are too few subjects with both values, or when the
+    slope is not negative (midwall shortening falls as stress rises: a flat or rising line is not
+    physiology, de Simone G et al., J Am Coll Cardiol 1994;23:1444) unless ``keep_implausible``."""
     line: dict = {}
     rows: list[dict] = []
     x = pd.to_numeric(frame.loc[usable, LINE_X], errors="coerce").to_numpy(dtype=float)
@@ -244,11 +248,23 @@ def line_rows(frame, usable, required, label, stamp, notes) -> tuple[dict, list[
             ),
         ]
         if not line["slope_pct_per_kdyn_cm2"] < 0:
-            notes.append(
+            why = (
                 f"{LINE_MODEL}: the slope is not negative ({line['slope_pct_per_kdyn_cm2']:.4g} "
                 f"%/(kdyn/cm2), r2={line['r2']:.3f}): these subjects do not show the expected fall "
-                "of midwall shortening with stress; check the measurements before using the line."
+                "of midwall shortening with stress"
             )
+            if not keep_implausible:
+                notes.append(
+                    f"{why}; the line was NOT written as a usable line (the base set's line is "
+                    "kept). Check the measurements, or keep it anyway, marked, with "
+                    "--keep-implausible-line."
+                )
+                return {}, []
+            notes.append(f"{why}; kept on request and marked as implausible in the set.")
+            for r in rows:
+                r["note"] = "; ".join(
+                    p for p in (r["note"], "IMPLAUSIBLE: slope not negative") if p
+                )
         notes.append(
             f"{LINE_MODEL}: fitted over both sexes pooled (n={line['n']}); lower limit of "
             f"stress-corrected midwall shortening = {LOWER_LIMIT_CENTILE:g}th centile of "

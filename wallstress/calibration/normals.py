@@ -21,7 +21,7 @@ import pandas as pd
 from wallstress.analysis.result import Analysis
 from wallstress.errors import InputError
 from wallstress.schema.fields import SEXES
-from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import OUT
 
 CLSI_MIN_PER_SEX = 120
 """Reference subjects per partition for a nonparametric interval (CLSI EP28-A3c, 2010; from memory)."""
@@ -103,8 +103,9 @@ def _too_few_message(counts: dict, min_per_sex: int, allow_small: bool) -> str:
     return (
         f"too few healthy subjects to fit reference limits ({have} usable): at least {min_per_sex} "
         f"per sex are needed (a nonparametric 97.5th centile needs {CLSI_MIN_PER_SEX} per sex, CLSI "
-        f"EP28-A3c, 2010). Add subjects, or pass allow_small=True to fit from at least {SMALL_FLOOR} "
-        "per sex with wide intervals"
+        f"EP28-A3c, 2010). Add subjects, or allow a small sample (--allow-small on the command "
+        f"line, allow_small=True from Python) to fit from at least {SMALL_FLOOR} per sex with wide "
+        "intervals"
     )
 
 

@@ -20,8 +20,7 @@ import pandas as pd
 from matplotlib.figure import Figure
 
 from wallstress.schema.fields import SEXES
-from wallstress.schema.outputs import OUT
-from wallstress.schema.vocabulary import GEOMETRY_CLASSES, in_words
+from wallstress.schema.vocabulary import GEOMETRY_CLASSES, OUT, in_words
 
 # Okabe-Ito palette (Okabe & Ito 2002).
 OKABE_ITO: dict[str, str] = {

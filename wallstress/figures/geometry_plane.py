@@ -33,7 +33,7 @@ from wallstress.figures.common import (
     _status,
     plain_text,
 )
-from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import OUT
 
 
 def geometry_plane(

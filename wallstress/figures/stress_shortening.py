@@ -28,7 +28,7 @@ from wallstress.figures.common import (
     _sex,
     _status_words,
 )
-from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import OUT
 
 
 def line_values(line) -> tuple[float, float, float, str]:

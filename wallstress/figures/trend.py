@@ -30,7 +30,7 @@ from wallstress.figures.common import (
     _time_axis,
     plain_text,
 )
-from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import OUT
 
 
 def mass_divisor(visits: pd.DataFrame, mass_index: str) -> np.ndarray:

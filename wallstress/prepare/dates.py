@@ -48,7 +48,12 @@ def _assemble(y, m, d, hh=None, mm=None, ss=None) -> pd.Series:
     return res
 
 
-def parse_dates(s: pd.Series, *, today: pd.Timestamp | None = None) -> tuple[pd.Series, dict]:
+DATE_ORDERS: tuple[str, ...] = ("auto", "dmy", "mdy")
+
+
+def parse_dates(
+    s: pd.Series, *, today: pd.Timestamp | None = None, order: str = "auto"
+) -> tuple[pd.Series, dict]:
     """Dates written any common way -> datetime64[ns] (NaT where unreadable), with problem masks.
 
     Read: datetime values; ISO text (2020-03-04); day-first text with dots (04.03.2020, always
@@ -59,6 +64,9 @@ def parse_dates(s: pd.Series, *, today: pd.Timestamp | None = None) -> tuple[pd.
     Problems: ``date_ambiguous_assumed`` (the column never shows its order: day-first assumed),
     ``date_ambiguous`` (the column shows both orders: left unread), ``date_unreadable``,
     ``date_out_of_range`` (before 1950 or after today; kept).
+
+    ``order`` ("auto", "dmy" or "mdy"): how slash or dash dates are read; "auto" decides by the
+    column's unambiguous rows, as above.
     """
     today = (today or pd.Timestamp.now()).normalize()
     n = len(s)
@@ -75,7 +83,7 @@ def parse_dates(s: pd.Series, *, today: pd.Timestamp | None = None) -> tuple[pd.
         out, bad = _from_serial(s.to_numpy(dtype="float64", na_value=np.nan))
         probs["date_unreadable"] = bad
     else:
-        out, probs = _dates_from_text(s, probs)
+        out, probs = _dates_from_text(s, probs, order)
     out = out.reset_index(drop=True)
     probs["date_out_of_range"] = (out.notna() & ((out < DATE_MIN) | (out > today))).to_numpy()
     return out, probs
@@ -94,9 +102,9 @@ def _from_serial(v: np.ndarray) -> tuple[pd.Series, np.ndarray]:
     return res, bad
 
 
-def _dates_from_text(s: pd.Series, probs: dict) -> tuple[pd.Series, dict]:
+def _dates_from_text(s: pd.Series, probs: dict, order: str = "auto") -> tuple[pd.Series, dict]:
     codes, uniq = factorize_text(s)
-    out_u, probs_u = _dates_from_unique(uniq, {k: np.zeros(len(uniq), bool) for k in probs})
+    out_u, probs_u = _dates_from_unique(uniq, {k: np.zeros(len(uniq), bool) for k in probs}, order)
     out = pd.Series(_expand(out_u.to_numpy(dtype="datetime64[ns]"), codes, np.datetime64("NaT")))
     return out.astype("datetime64[ns]"), {
         k: _expand(v, codes, False).astype(bool) for k, v in probs_u.items()
@@ -117,7 +125,7 @@ def _plain_iso_dates(t: pd.Series, missing: np.ndarray) -> pd.Series | None:
     return got.astype("datetime64[ns]")  # a missing token ("na", "-") never reads as a date
 
 
-def _dates_from_unique(t: pd.Series, probs: dict) -> tuple[pd.Series, dict]:
+def _dates_from_unique(t: pd.Series, probs: dict, order: str = "auto") -> tuple[pd.Series, dict]:
     n = len(t)
     missing = _is_missing_text(t)
     plain = _plain_iso_dates(t.reset_index(drop=True), missing)
@@ -164,7 +172,10 @@ def _dates_from_unique(t: pd.Series, probs: dict) -> tuple[pd.Series, dict]:
         mon_ev = slash & (b_np > 12) & (a_np <= 12)
         unsure = slash & (a_np <= 12) & (b_np <= 12) & (a_np != b_np)
         dayfirst = np.ones(len(t), dtype=bool)
-        if mon_ev.any() and not day_ev.any():
+        if order != "auto":  # the user said: no guess, no ambiguity
+            dayfirst = np.full(len(t), order == "dmy")
+            mon_ev = day_ev = unsure = np.zeros(len(t), dtype=bool)
+        elif mon_ev.any() and not day_ev.any():
             dayfirst = np.where(slash, False, True)
         if mon_ev.any():
             dayfirst = np.where(mon_ev, False, dayfirst)

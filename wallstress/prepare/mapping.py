@@ -37,6 +37,7 @@ from wallstress.prepare.cells import (
     plain_integers,
 )
 from wallstress.prepare.dates import (
+    DATE_ORDERS,
     parse_dates,
 )
 from wallstress.schema import fields as schema
@@ -111,6 +112,10 @@ def map_columns(
         ``UNIT_CHOICES``.
     """
     options = options or Options()
+    if options.date_order not in DATE_ORDERS:
+        raise InputError(
+            f"date_order={options.date_order!r} is not valid; use one of {', '.join(DATE_ORDERS)}"
+        )
     if options.units not in UNIT_CHOICES:
         raise InputError(
             f"units={options.units!r} is not valid; use one of {', '.join(UNIT_CHOICES)}"
@@ -178,8 +183,23 @@ def map_columns(
             canonical[fname] = out
             parts.extend(_row_findings(s, header, fname, probs, _SEX_MESSAGES))
         elif fld.kind == "date":
-            out, probs = parse_dates(s)
+            out, probs = parse_dates(s, order=options.date_order)
             canonical[fname] = out
+            assumed = probs.pop("date_ambiguous_assumed")
+            if assumed.any():  # the column never shows its order: one finding for the column
+                parts.append(
+                    fnd.make(
+                        [-1],
+                        code="date_order_assumed",
+                        severity="warning",
+                        column=header,
+                        field=fname,
+                        message=f"No date in column {header!r} shows whether it is day-first or "
+                        f"month-first ({int(assumed.sum())} could be either); they were read "
+                        "day-first (04/03/2021 = 4 March). If they are month-first, run again with "
+                        "--date-order mdy; write dates as YYYY-MM-DD to be sure.",
+                    )
+                )
             parts.extend(_row_findings(s, header, fname, probs, _DATE_MESSAGES))
         else:
             canonical[fname] = parse_ids(s)

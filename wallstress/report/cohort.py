@@ -13,7 +13,7 @@ from wallstress.figures.transitions import transition_matrix, transitions_figure
 from wallstress.figures.trend import lvmi_trend
 from wallstress.report.html import COLUMN_LABELS, _e, _Figures, _fmt, _kv, _table, _verified_text
 from wallstress.report.inputs import _lsc_g
-from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import OUT
 
 VISIT_COLUMNS: tuple[str, ...] = (
     "study_date",

@@ -18,7 +18,8 @@ import pandas as pd
 
 from wallstress.figures import save as fig_mod
 from wallstress.figures.common import GEOMETRY_LABELS
-from wallstress.schema.outputs import OUT, OUTPUTS
+from wallstress.schema.outputs import OUTPUTS
+from wallstress.schema.vocabulary import OUT
 
 MAX_TABLE_ROWS = 500
 

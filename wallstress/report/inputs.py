@@ -15,7 +15,7 @@ import pandas as pd
 from wallstress import findings as fnd
 from wallstress.analysis.references import DEFAULT_SET, list_sets, load_set, model_coefficients
 from wallstress.figures.common import GEOMETRY_LABELS, LINE_KEYS, _sex
-from wallstress.schema.outputs import OUT
+from wallstress.schema.vocabulary import OUT
 
 FALLBACK_LSC_G = 35.0  # Palmieri V et al., J Am Coll Cardiol 1999 (used only without a set)
 

@@ -34,8 +34,8 @@ from wallstress.report.html import (
     _verified_text,
 )
 from wallstress.report.inputs import _coefficients, _geometry_labels, _midwall_line, _sex_labels
-from wallstress.schema.outputs import OUT, SUMMARY_MEASURES
-from wallstress.schema.vocabulary import CLINICAL_CAUTION
+from wallstress.schema.outputs import SUMMARY_MEASURES
+from wallstress.schema.vocabulary import CLINICAL_CAUTION, OUT
 
 CAUTION = (
     f"{CLINICAL_CAUTION} Check every flagged row, and read each number against the reference "

@@ -10,7 +10,8 @@ from __future__ import annotations
 import re
 
 from wallstress.schema.fields import BY_NAME
-from wallstress.schema.outputs import OUT, OUTPUT_UNITS
+from wallstress.schema.outputs import OUTPUT_UNITS
+from wallstress.schema.vocabulary import OUT
 
 # Name endings -> unit, longest first (for columns of other tables, e.g. tracking).
 _SUFFIX_UNITS: tuple[tuple[str, str], ...] = (

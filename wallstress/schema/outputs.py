@@ -40,6 +40,10 @@ class Output:
     decimals: int | None = None  # how many decimals a reader needs (None: text)
     summary: bool = False  # in the report's summary of measures
     tracked: str = ""  # stem of its follow-up columns (``lv_mass`` -> ``lv_mass_first_g``)
+    # values beyond which a result is far outside physiology, so its inputs are suspect (a wall
+    # typed too thin gives a stress of 700 kdyn/cm2): flagged, not blanked (common practice, no
+    # source)
+    plausible: tuple[float, float] | None = None
 
     @property
     def is_number(self) -> bool:
@@ -119,6 +123,7 @@ OUTPUTS: tuple[Output, ...] = (
                 SCHILLER,
             ),
         ),
+        plausible=(30, 1000),
     ),
     Output(
         "lv_mass_method",
@@ -137,6 +142,7 @@ OUTPUTS: tuple[Output, ...] = (
         summary=True,
         tracked="lvmi_bsa",
         methods=_one("LV mass / BSA", LANG_2015),
+        plausible=(20, 400),
     ),
     Output(
         "lvmi_h27_g_m2_7",
@@ -176,6 +182,7 @@ OUTPUTS: tuple[Output, ...] = (
                 "(IVSd + PWd) / LVIDd", "Ganau A et al., J Am Coll Cardiol 1992;19:1550"
             ),
         ),
+        plausible=(0.15, 1.2),
     ),
     Output(
         "geometry",
@@ -244,6 +251,7 @@ OUTPUTS: tuple[Output, ...] = (
         Output(f"{stem}_grade", "grade", f"{label} grade", "analysis.classify.grade_codes", inputs)
         for stem, label, inputs in (
             ("lvmi", "LVMI", (*LINEAR, "height_cm", "weight_kg", "sex")),
+            ("lvmi_h27", "LVMI/height^2.7", (*LINEAR, "height_cm", "sex")),
             ("rwt", "RWT", ("lvidd_cm", "pwd_cm", "sex")),
             ("lvidd", "LVIDd", ("lvidd_cm", "sex")),
             ("ivsd", "IVSd", ("ivsd_cm", "sex")),
@@ -340,6 +348,7 @@ OUTPUTS: tuple[Output, ...] = (
                 "Grossman 1975 form with the exact mmHg -> kdyn/cm2 factor",
             ),
         ),
+        plausible=(10, 300),
     ),
     Output(
         "cess_kdyn_cm2",
@@ -363,6 +372,7 @@ OUTPUTS: tuple[Output, ...] = (
                 "same form with the exact mmHg -> kdyn/cm2 factor (1.24 % lower)",
             ),
         ),
+        plausible=(30, 600),
     ),
     Output(
         "midwall_fs_pct",
@@ -379,6 +389,7 @@ OUTPUTS: tuple[Output, ...] = (
             f"{DE_SIMONE_1994} (method checked; formula form from memory)",
             FROM_MEMORY,
         ),
+        plausible=(2, 35),
     ),
     Output(
         "midwall_fs_predicted_pct",
@@ -475,21 +486,3 @@ SUMMARY_MEASURES: tuple[str, ...] = tuple(o.name for o in OUTPUTS if o.summary)
 TRACKED_MEASURES: tuple[tuple[str, str, str], ...] = tuple(
     (o.name, o.tracked, o.name[len(o.tracked) + 1 :]) for o in OUTPUTS if o.tracked
 )
-
-
-class _OutputNames:
-    """``OUT.lv_mass_g == "lv_mass_g"``: other stages name an output column through the registry,
-    so a column renamed or dropped here fails loudly where it is used, never as an empty column."""
-
-    __slots__ = ()
-
-    def __getattr__(self, name: str) -> str:
-        if name in BY_OUTPUT:
-            return name
-        raise AttributeError(f"{name!r} is not an output column (see wallstress.schema.outputs)")
-
-    def __dir__(self):
-        return list(OUTPUT_COLUMNS)
-
-
-OUT = _OutputNames()

@@ -4,6 +4,7 @@ the clinical caution."""
 from __future__ import annotations
 
 from wallstress.formulas import body_size, mass, stress
+from wallstress.schema.outputs import BY_OUTPUT, OUTPUT_COLUMNS
 
 # The four geometry classes (Ganau 1992), in reading order; "" where a row cannot be classed.
 GEOMETRY_CLASSES: tuple[str, ...] = (
@@ -40,3 +41,21 @@ FROM_MEMORY_CAUTION = (
     "Values marked 'from_memory' were recalled, not checked against the published text: treat "
     "results that depend on them (listed under 'unverified') as provisional."
 )
+
+
+class _OutputNames:
+    """``OUT.lv_mass_g == "lv_mass_g"``: other stages name an output column through the registry,
+    so a column renamed or dropped here fails loudly where it is used, never as an empty column."""
+
+    __slots__ = ()
+
+    def __getattr__(self, name: str) -> str:
+        if name in BY_OUTPUT:
+            return name
+        raise AttributeError(f"{name!r} is not an output column (see wallstress.schema.outputs)")
+
+    def __dir__(self):
+        return list(OUTPUT_COLUMNS)
+
+
+OUT = _OutputNames()

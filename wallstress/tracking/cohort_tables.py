@@ -11,8 +11,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from wallstress.schema.outputs import OUT
-from wallstress.schema.vocabulary import GEOMETRY_CLASSES
+from wallstress.schema.vocabulary import GEOMETRY_CLASSES, OUT
 
 UNDETERMINED = "undetermined"
 

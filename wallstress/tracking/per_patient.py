@@ -15,8 +15,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from wallstress.schema.outputs import OUT
-from wallstress.schema.vocabulary import CONCENTRIC_REMODELLING, HYPERTROPHY, NORMAL
+from wallstress.schema.vocabulary import CONCENTRIC_REMODELLING, HYPERTROPHY, NORMAL, OUT
 from wallstress.tracking.statistics import grouped_linear_fit
 from wallstress.tracking.visits import _NS_PER_DAY, DAYS_PER_YEAR, MEASURES
 

@@ -42,8 +42,7 @@ import pandas as pd
 from wallstress import __version__
 from wallstress import findings as fnd
 from wallstress.options import Options
-from wallstress.schema.outputs import OUT
-from wallstress.schema.vocabulary import CLINICAL_CAUTION
+from wallstress.schema.vocabulary import CLINICAL_CAUTION, OUT
 from wallstress.tracking.cohort_tables import (
     _prevalence,
     _transitions,

@@ -14,7 +14,8 @@ import pandas as pd
 from wallstress import findings as fnd
 from wallstress.analysis.pipeline import analyse_with_findings
 from wallstress.errors import InputError
-from wallstress.schema.outputs import OUT, TRACKED_MEASURES
+from wallstress.schema.outputs import TRACKED_MEASURES
+from wallstress.schema.vocabulary import OUT
 from wallstress.tracking.cohort_tables import GEOMETRY_CLASSES
 
 SAME_DAY_RULES: tuple[str, ...] = ("mean", "last")
