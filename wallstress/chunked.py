@@ -145,36 +145,15 @@ def analyse_chunked(
             f"chunked output {out.name!r}: use a name ending in {' or '.join(CHUNK_OUTPUT_SUFFIXES)} "
             "(an xlsx sheet cannot hold a registry; for small lists run without chunking)"
         )
-    out, findings_out, methods_out = safety.check_outputs(
-        planned_outputs(out, results_keys()), [src]
-    )
+    outputs = safety.check_outputs(planned_outputs(out, results_keys()), [src])
     with safety.protected_inputs(src):
-        return _run(
-            src,
-            kind,
-            out,
-            findings_out,
-            methods_out,
-            suffix,
-            options,
-            chunk_rows,
-            progress,
-            escape_formulas,
-        )
+        return _run(src, kind, outputs, options, chunk_rows, progress, escape_formulas)
 
 
-def _run(
-    src,
-    kind,
-    out,
-    findings_out,
-    methods_out,
-    suffix,
-    options,
-    chunk_rows,
-    progress,
-    escape_formulas,
-):
+def _run(src, kind, outputs, options, chunk_rows, progress, escape_formulas) -> ChunkedResult:
+    """The chunked run proper, once its outputs are checked and its input protected."""
+    out, findings_out, methods_out = outputs
+    suffix = out.suffix.lower()
 
     digest = safety.sha256_file(src)
     if kind == "csv":

@@ -113,21 +113,23 @@ def blank_inputs(canonical, earlier, labels: dict | None = None) -> list:
     naming the measures left empty, so that an empty ``flags`` cell means every measure the row's
     inputs allow was computed. Rows whose value has its own finding already (impossible, not a
     number...) are not told twice."""
-    said: dict[str, set] = {}
+    n = len(canonical)
+    present = [f for f in KEY_INPUTS if f in canonical.columns]
+    said = {f: np.zeros(n, dtype=bool) for f in present}  # rows whose value has a finding
     for part in earlier:
         if part is None or not len(part):
             continue
-        for field, rows in part.groupby("field", observed=True)["row"]:
-            said.setdefault(str(field), set()).update(rows.tolist())
+        rows = part["row"].to_numpy(dtype="int64")
+        inside = (rows >= 0) & (rows < n)
+        for f in present:
+            hit = inside & (part["field"] == f).to_numpy(dtype=bool)
+            if hit.any():
+                said[f][rows[hit]] = True
     parts = []
-    for field in KEY_INPUTS:
-        if field not in canonical.columns:
-            continue
-        blank = np.isnan(canonical[field].to_numpy(dtype=float))
+    for field in present:
+        blank = np.isnan(canonical[field].to_numpy(dtype=float)) & ~said[field]
         if not blank.any():
             continue
-        if said.get(field):
-            blank[[r for r in said[field] if 0 <= r < len(blank)]] = False
         stops = stopped_by(field)
         f = schema.BY_NAME[field]
         parts.append(
