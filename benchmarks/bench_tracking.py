@@ -19,9 +19,9 @@ import time
 import numpy as np
 import pandas as pd
 
+from wallstress.schema.outputs import TRACKED_MEASURES
 from wallstress.tracking.per_patient import SLOPE_MEASURES
 from wallstress.tracking.track import track
-from wallstress.tracking.visits import MEASURES
 
 GEOMETRY = ("normal", "concentric_remodelling", "concentric_hypertrophy", "eccentric_hypertrophy")
 
@@ -62,7 +62,7 @@ def invented_cohort(n_patients: int, n_visits: int, seed: int = 1) -> pd.DataFra
 def baseline_sort_diff(df: pd.DataFrame) -> pd.DataFrame:
     s = df.sort_values(["patient_id", "study_date", "study_id"])
     g = s.groupby("patient_id", sort=False)
-    cols = [m for m, _, _ in MEASURES]
+    cols = [m for m, _, _ in TRACKED_MEASURES]
     return pd.concat([s[cols] - g[cols].transform("first"), g[cols].diff()], axis=1)
 
 

@@ -83,7 +83,7 @@ def text_codes(values, to_text) -> tuple[np.ndarray, list[str]]:
         return np.zeros(0, dtype=np.int64), []
     if arr.dtype.kind == "f":
         key, _ = pd.factorize(arr, use_na_sentinel=False)
-    elif arr.dtype.kind in "iub":
+    elif arr.dtype.kind in "iubU":  # one type throughout: no per-value type check
         key, _ = pd.factorize(arr)
     else:
         arr = arr.astype(object, copy=False)

@@ -10,6 +10,7 @@ from __future__ import annotations
 import difflib
 
 import numpy as np
+import pandas as pd
 
 from wallstress import findings as fnd
 from wallstress.errors import InputError
@@ -119,10 +120,14 @@ def blank_inputs(canonical, earlier, labels: dict | None = None) -> list:
     for part in earlier:
         if part is None or not len(part):
             continue
+        field = part["field"]
+        cats = field.cat.categories if isinstance(field.dtype, pd.CategoricalDtype) else None
+        if cats is not None and not set(map(str, cats)) & set(present):
+            continue  # a rule about other fields (most rules are about one field)
         rows = part["row"].to_numpy(dtype="int64")
         inside = (rows >= 0) & (rows < n)
         for f in present:
-            hit = inside & (part["field"] == f).to_numpy(dtype=bool)
+            hit = inside & (field == f).to_numpy(dtype=bool)
             if hit.any():
                 said[f][rows[hit]] = True
     parts = []

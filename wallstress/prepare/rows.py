@@ -29,27 +29,39 @@ def non_study_rows(raw: pd.DataFrame, canonical: pd.DataFrame, blanked=()) -> np
     ``blanked``: rows whose cells the reader emptied (error values, uncalculated formulas);
     they had content and stay studies."""
     n = len(raw)
+    out = np.zeros(n, dtype=bool)
     if n == 0:
-        return np.zeros(0, dtype=bool)
-    filled = raw.notna().to_numpy()
+        return out
+    # a row with IVSd, LVIDd and PWd all given is a study: only the others are looked at
+    main = [c for c in ("ivsd_cm", "lvidd_cm", "pwd_cm") if c in canonical.columns]
+    complete = np.ones(n, dtype=bool) if len(main) == 3 else np.zeros(n, dtype=bool)
+    for c in main if len(main) == 3 else ():
+        complete &= np.isfinite(canonical[c].to_numpy(dtype=float))
+    look = np.flatnonzero(~complete)
+    if not look.size:
+        out[np.asarray(blanked, dtype="int64")] = False
+        return out
+    sub = raw.iloc[look]
+    filled = sub.notna().to_numpy()
     n_filled = filled.sum(axis=1)
     lv = [c for c in schema.LINEAR_FIELDS if c in canonical.columns]
     has_lv = (
-        np.isfinite(canonical[lv].to_numpy(dtype=float)).any(axis=1)
+        np.isfinite(canonical[lv].to_numpy(dtype=float)[look]).any(axis=1)
         if lv
-        else np.zeros(n, dtype=bool)
+        else np.zeros(look.size, dtype=bool)
     )
-    out = n_filled == 0
+    found = n_filled == 0
     # a trailer or total names itself in its first cell and fills few others ("Total,,,,40");
     # a footnote is one cell of several words with no LV dimension
     for i in np.flatnonzero((n_filled > 0) & (n_filled <= 3)):
-        first = raw.iat[i, int(np.argmax(filled[i]))]
+        first = sub.iat[i, int(np.argmax(filled[i]))]
         if not isinstance(first, str):
             continue
         if _TRAILER.match(first) or (
             n_filled[i] == 1 and not has_lv[i] and len(first.split()) >= 3
         ):
-            out[i] = True
+            found[i] = True
+    out[look] = found
     out[np.asarray(blanked, dtype="int64")] = False
     return out
 

@@ -61,22 +61,29 @@ class _Check:
 
     def rule(self, mask, code, severity, message, field, values=None) -> None:
         mask = np.asarray(mask, dtype=bool)
-        if mask.any():
-            rows = np.flatnonzero(mask)
-            label = self.labels.get(field)
-            if self.raw is not None and label in self.raw.columns:
-                values = self.raw[label].to_numpy(dtype=object)
-            self.parts.append(
-                fnd.make(
-                    rows,
-                    code=code,
-                    severity=severity,
-                    message=message,
-                    column=self.labels.get(field, field),
-                    field=field,
-                    values=None if values is None else np.asarray(values)[rows],
-                )
+        if not mask.any():
+            return
+        rows = np.flatnonzero(mask)
+        label = self.labels.get(field)
+        if self.raw is not None and label in self.raw.columns:
+            cells = self.raw[label].iloc[rows]  # only the rows flagged, as the user wrote them
+            if pd.api.types.is_string_dtype(cells.dtype) and cells.dtype != object:
+                shown = cells.fillna("").to_numpy(dtype=str)  # text: no Python type per cell
+            else:
+                shown = cells.to_numpy()
+        else:
+            shown = None if values is None else np.asarray(values)[rows]
+        self.parts.append(
+            fnd.make(
+                rows,
+                code=code,
+                severity=severity,
+                message=message,
+                column=self.labels.get(field, field),
+                field=field,
+                values=shown,
             )
+        )
 
     def blank(self, name: str, mask: np.ndarray) -> None:
         if mask.any():

@@ -15,9 +15,10 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from wallstress.schema.outputs import TRACKED_MEASURES
 from wallstress.schema.vocabulary import CONCENTRIC_REMODELLING, HYPERTROPHY, NORMAL, OUT
 from wallstress.tracking.statistics import grouped_linear_fit
-from wallstress.tracking.visits import _NS_PER_DAY, DAYS_PER_YEAR, MEASURES
+from wallstress.tracking.visits import _NS_PER_DAY, DAYS_PER_YEAR
 
 SLOPE_MEASURES: tuple[str, ...] = (OUT.lv_mass_g, OUT.lvmi_bsa_g_m2, OUT.lvmi_h27_g_m2_7, OUT.rwt)
 
@@ -90,7 +91,7 @@ def _visits(v: pd.DataFrame, gid, starts, ids, lsc: float) -> pd.DataFrame:
         OUT.geometry: v[OUT.geometry].to_numpy(),
     }
     keys = pd.Series(gid)
-    for col, stem, unit in MEASURES:
+    for col, stem, unit in TRACKED_MEASURES:
         y = v[col].reset_index(drop=True)
         grouped = y.groupby(keys, sort=False)
         base = grouped.transform("first")  # earliest available value
@@ -139,7 +140,7 @@ def _patients(visits, gid, starts, ends, ids, n_groups, n_studies, lsc) -> pd.Da
     n_sex = visits["sex"].groupby(keys, sort=False).nunique().to_numpy()
     out["sex"] = np.where(n_sex > 1, "", pd.Series(sex_last).fillna("").to_numpy())
 
-    for col, stem, unit in MEASURES:
+    for col, stem, unit in TRACKED_MEASURES:
         first, last, _ = _first_last(visits[col].reset_index(drop=True), keys)
         out[_name(stem, "first", unit)] = first
         out[_name(stem, "last", unit)] = last
@@ -151,7 +152,7 @@ def _patients(visits, gid, starts, ends, ids, n_groups, n_studies, lsc) -> pd.Da
     out["lv_mass_real_change"] = _real(mass_change, lsc)
 
     for col in SLOPE_MEASURES:
-        stem, unit = next((st, u) for c, st, u in MEASURES if c == col)
+        stem, unit = next((st, u) for c, st, u in TRACKED_MEASURES if c == col)
         per = f"{unit}_per_year" if unit else "per_year"
         fit = grouped_linear_fit(gid, years, visits[col].to_numpy(), n_groups)
         out[f"{stem}_slope_{per}"] = fit["slope"].to_numpy()

@@ -21,9 +21,6 @@ from wallstress.tracking.cohort_tables import GEOMETRY_CLASSES
 SAME_DAY_RULES: tuple[str, ...] = ("mean", "last")
 
 
-MEASURES = TRACKED_MEASURES  # (column, stem of follow-up names, unit ending)
-
-
 BODY_COLUMNS: tuple[str, ...] = ("height_cm", "weight_kg", "age_years")
 
 
@@ -110,7 +107,7 @@ def _prepare(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[pd.DataFrame], dic
         out["sex"] = sex.where(sex.isin(["F", "M"]))
     else:
         out["sex"] = pd.Series(pd.NA, index=out.index, dtype="string")
-    for col in (*(m for m, _, _ in MEASURES), *BODY_COLUMNS):
+    for col in (*(m for m, _, _ in TRACKED_MEASURES), *BODY_COLUMNS):
         if col in frame.columns:
             out[col] = pd.to_numeric(frame[col].reset_index(drop=True), errors="coerce").astype(
                 float
@@ -201,7 +198,7 @@ def _collapse_same_day(s: pd.DataFrame, rule: str) -> tuple[pd.DataFrame, list[p
 
     # rule == "mean": numeric measures averaged; geometry kept only when every study of the day agrees
     g = dup.groupby(dup_visit, sort=False)
-    num_cols = [m for m, _, _ in MEASURES] + list(BODY_COLUMNS)
+    num_cols = [m for m, _, _ in TRACKED_MEASURES] + list(BODY_COLUMNS)
     merged = dup[is_last].copy()
     merged[num_cols] = g[num_cols].mean().to_numpy()
     sex = g["sex"].last()  # last non-missing value
