@@ -325,7 +325,7 @@ def test_allow_small_fits_and_marks_rows():
     cal = calibrate(synthetic_frame(60), allow_small=True)
     lab = cal.rows[(cal.rows["verified"] == "lab") & (cal.rows["kind"] == "cutoff")]
     sexed = lab[lab["sex"] != ""]
-    assert len(sexed) == 8
+    assert len(sexed) == 10  # 2 sexes x (LVMI/BSA, LVMI/height^2.7, EDV index, concentricity, cESS)
     assert sexed["note"].str.contains("small sample: n=60, interval wide").all()
     assert any("small sample" in n for n in cal.notes)
     with pytest.raises(InputError, match=r"at least 40 per sex"):
@@ -522,3 +522,17 @@ def test_prediction_interval_has_95_percent_coverage_in_small_samples():
         centre = line["intercept_pct"] + line["slope_pct_per_kdyn_cm2"] * x0
         hits += abs(new - centre) <= line["pi95_half_width_at_mean_pct"]
     assert hits / reps == pytest.approx(0.95, abs=4 * np.sqrt(0.95 * 0.05 / reps))
+
+
+def test_lab_limits_for_diameter_walls_and_stress(lab_analysis):
+    """LVIDd, IVSd, PWd and the end-systolic stresses get the lab's own upper limits, the 97.5th
+    centile by sex (numpy 'linear' = Hyndman & Fan definition 7, Am Stat 1996;50:361)."""
+    cal = calibrate(lab_analysis, lab_name="synthetic_lab", keep_implausible_line=True)
+    frame = lab_analysis.frame()
+    lab = cal.rows[(cal.rows["verified"] == "lab") & (cal.rows["kind"] == "cutoff")]
+    for measure in ("lvidd_cm", "ivsd_cm", "pwd_cm", "mess_kdyn_cm2", "cess_kdyn_cm2"):
+        for sex in ("F", "M"):
+            row = lab[(lab["measure"] == measure) & (lab["sex"] == sex)]
+            assert len(row) == 1, (measure, sex)
+            values = frame.loc[frame["sex"] == sex, measure].dropna().to_numpy(dtype=float)
+            assert row["value"].iloc[0] == pytest.approx(np.quantile(values, 0.975), rel=1e-12)

@@ -85,6 +85,11 @@ FITTED_MEASURES: tuple[tuple[str, str], ...] = (
     (OUT.rwt, ""),
     (OUT.edv_index_ml_m2, "mL/m2"),
     (OUT.concentricity_g_ml23, "g/mL^(2/3)"),
+    ("lvidd_cm", "cm"),
+    ("ivsd_cm", "cm"),
+    ("pwd_cm", "cm"),
+    (OUT.mess_kdyn_cm2, "kdyn/cm2"),
+    (OUT.cess_kdyn_cm2, "kdyn/cm2"),
 )
 """Measures given a lab upper limit (97.5th centile), with their units."""
 
@@ -184,13 +189,14 @@ def calibrate(
 
     present = [(m, u) for m, u in FITTED_MEASURES if m in frame.columns]
     have_line = LINE_X in frame.columns and LINE_Y in frame.columns
-    if not present and not have_line:
+    analysed = any(m in frame.columns for m in (OUT.lvmi_bsa_g_m2, OUT.rwt, LINE_X, LINE_Y))
+    if not analysed:  # a raw study list has the dimensions but none of the measures
         wanted = ", ".join([m for m, _ in FITTED_MEASURES] + [LINE_X, LINE_Y])
         raise InputError(
             f"nothing to fit: none of the measure columns ({wanted}) is present. Pass the result of "
             "wallstress.analyse_with_findings(normals) (or its .frame()), not the raw study list"
         )
-    for m, _ in FITTED_MEASURES:
+    for m, _ in FITTED_MEASURES[:5]:  # the measures (the dimensions come with any analysed list)
         if m not in frame.columns:
             notes.append(f"{m}: column absent, not fitted; the base set's rows are kept.")
 
