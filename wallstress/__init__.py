@@ -3,9 +3,11 @@
 Public API::
 
     analyse(df, options=None) -> DataFrame      every row in, every row out, measures and flags added
+    analyse_with_findings(df, ...) -> Analysis   the same, with the findings and the methods record
     track(results, ...) -> Tracking              per-patient change, slopes, geometry transitions
     read_studies(path, ...) -> StudyTable        a study list from csv / xlsx / ods / parquet
     write_results(...)                           results, findings and methods next to the user's data
+    calibrate(analysed_normals, ...) -> Calibration  a lab's own reference set from its healthy subjects
     Options                                      how a run is done (reference set, formulas, units)
 
 wallstress supports, and never replaces, a qualified clinician's judgement and the local lab's
