@@ -141,13 +141,12 @@ def map_columns(
         if fname in taken:
             unmapped.append(col)
             parts.append(
-                fnd.make(
-                    [-1],
-                    code="duplicate_field",
-                    severity="warning",
-                    column=header,
-                    field=fname,
-                    message=f"Column {header!r} also names {fname}, already read from column "
+                _column_finding(
+                    "duplicate_field",
+                    "warning",
+                    header,
+                    fname,
+                    f"Column {header!r} also names {fname}, already read from column "
                     f"{taken[fname]!r}; the first is used and this one is carried through unread. "
                     "Rename one of them or map them with --columns.",
                 )
@@ -157,20 +156,22 @@ def map_columns(
         fld = schema.BY_NAME[fname]
         if how == "words, phase assumed":
             parts.append(
-                fnd.make(
-                    [-1],
-                    code="phase_assumed",
-                    severity="note",
-                    column=header,
-                    field=fname,
-                    message=f"Column {header!r} names no phase of the cycle; it was read as "
+                _column_finding(
+                    "phase_assumed",
+                    "note",
+                    header,
+                    fname,
+                    f"Column {header!r} names no phase of the cycle; it was read as "
                     f"{fname} (end-diastole, where walls and cavity are measured by convention). "
                     f"If it is end-systolic, map it with --columns ({header},{fname.replace('d_cm', 's_cm')}).",
                 )
             )
         s = raw.iloc[:, j].reset_index(drop=True)
         parsed = (numbers or {}).get(col)
-        if parsed is not None and (fld.kind != "id" or plain_integers(s)):
+        # the reader's numbers for numbers and dates; for ids only where the text is the number
+        if parsed is not None and (
+            fld.kind in ("number", "date") or (fld.kind == "id" and plain_integers(s))
+        ):
             s = pd.Series(parsed, copy=False, name=s.name)
         if fld.kind == "number":
             values, entry, fparts = _map_number(s, header, fld, how, options.units)
@@ -188,13 +189,12 @@ def map_columns(
             assumed = probs.pop("date_ambiguous_assumed")
             if assumed.any():  # the column never shows its order: one finding for the column
                 parts.append(
-                    fnd.make(
-                        [-1],
-                        code="date_order_assumed",
-                        severity="warning",
-                        column=header,
-                        field=fname,
-                        message=f"No date in column {header!r} shows whether it is day-first or "
+                    _column_finding(
+                        "date_order_assumed",
+                        "warning",
+                        header,
+                        fname,
+                        f"No date in column {header!r} shows whether it is day-first or "
                         f"month-first ({int(assumed.sum())} could be either); they were read "
                         "day-first (04/03/2021 = 4 March). If they are month-first, run again with "
                         "--date-order mdy; write dates as YYYY-MM-DD to be sure.",
@@ -215,13 +215,12 @@ def map_columns(
             schema.normalise_header(c) == schema.normalise_header(user) for c in raw.columns
         ):
             parts.append(
-                fnd.make(
-                    [-1],
-                    code="columns_option_unused",
-                    severity="warning",
-                    column=user,
-                    field=cols_opt[user],
-                    message=f"--columns names {user!r}, but the table has no such column; "
+                _column_finding(
+                    "columns_option_unused",
+                    "warning",
+                    user,
+                    cols_opt[user],
+                    f"--columns names {user!r}, but the table has no such column; "
                     "check the spelling of the header.",
                 )
             )
@@ -246,6 +245,11 @@ def map_columns(
     )
 
 
+def _column_finding(code: str, severity: str, column: str, field: str, message: str):
+    """A finding about a whole column (row -1)."""
+    return fnd.make([-1], code=code, severity=severity, column=column, field=field, message=message)
+
+
 def _map_pressure_pair(raw, j, canonical, mapping, taken, unmapped) -> list:
     """A column of "128/82" cells read into sbp_mmhg and dbp_mmhg, unless the list has those
     columns already (then it is carried through unread, with a note)."""
@@ -254,13 +258,12 @@ def _map_pressure_pair(raw, j, canonical, mapping, taken, unmapped) -> list:
     if "sbp_mmhg" in canonical or "dbp_mmhg" in canonical:
         unmapped.append(col)
         return [
-            fnd.make(
-                [-1],
-                code="pressure_pair_unused",
-                severity="note",
-                column=header,
-                field="sbp_mmhg",
-                message=f"Column {header!r} holds blood pressures, but the list has separate "
+            _column_finding(
+                "pressure_pair_unused",
+                "note",
+                header,
+                "sbp_mmhg",
+                f"Column {header!r} holds blood pressures, but the list has separate "
                 "systolic and diastolic columns; those were used.",
             )
         ]
@@ -436,13 +439,12 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
             and len(units.candidate_units(fld.name)) > 1
         ):
             parts.append(
-                fnd.make(
-                    [-1],
-                    code="unit_doubtful",
-                    severity="warning",
-                    column=header,
-                    field=fld.name,
-                    message=f"Column {_unit_name(header)!r} is read as {unit_from} ({basis}), but "
+                _column_finding(
+                    "unit_doubtful",
+                    "warning",
+                    header,
+                    fld.name,
+                    f"Column {_unit_name(header)!r} is read as {unit_from} ({basis}), but "
                     f"its values look like {guess.unit}: {guess.reason}. Check the unit.",
                 )
             )
@@ -462,13 +464,12 @@ def _map_number(s: pd.Series, header: str, fld: schema.Field, how: str, units_op
             internal[~np.isfinite(internal)] = np.nan
     if not all_plain:
         parts.append(
-            fnd.make(
-                [-1],
-                code="unit_in_cells",
-                severity="note",
-                column=header,
-                field=fld.name,
-                message=f"Column {_unit_name(header)!r}: {int((~plain).sum())} cells state their own "
+            _column_finding(
+                "unit_in_cells",
+                "note",
+                header,
+                fld.name,
+                f"Column {_unit_name(header)!r}: {int((~plain).sum())} cells state their own "
                 "unit (e.g. '4.8 cm'); each was converted with its own unit.",
             )
         )
