@@ -77,7 +77,8 @@ def test_missing_wall_is_loud_and_the_columns_fix_works(tmp_path):
     assert r.exit_code == 0, r.output
     assert "40 studies" in r.output and "40 without LV mass" in r.output
     assert "No column for pwd_cm" in r.output and "'PWall dia (mm)'" in r.output
-    assert "PWall dia (mm),pwd_cm" in r.output
+    assert "two lines: header,field and PWall dia (mm),pwd_cm" in r.output  # the file to write
+    assert "No column for sex" not in r.output  # sex has its own finding
     out = pd.read_csv(tmp_path / "out.csv", dtype=str, keep_default_na=False)
     assert len(out) == 42  # 40 studies, the blank row and the trailer, in their places
     assert out["Exam no."].iloc[0] == "HX00000" and out["MRN"].iloc[0] == "007000"

@@ -19,7 +19,8 @@ from wallstress.schema.outputs import OUTPUTS
 
 # The inputs whose absence is an error (no LV mass, RWT or class) rather than a warning.
 LV_DIMENSIONS: tuple[str, ...] = ("ivsd_cm", "lvidd_cm", "pwd_cm")
-_ALWAYS_OPTIONAL = frozenset({"age_years", "hr_bpm", "ejection_time_ms"})
+# optional, or (sex) told by its own finding
+_ALWAYS_OPTIONAL = frozenset({"age_years", "hr_bpm", "ejection_time_ms", "sex"})
 
 
 # The measures a reader looks for first, named first in a message.
@@ -52,6 +53,11 @@ def suggestions(field: str, unmapped, limit: int = 2) -> list[str]:
     return [h for _, h in sorted(scored, reverse=True)[:limit]]
 
 
+def _csv_cell(text: str) -> str:
+    """A header as a CSV field (quoted when it holds a comma or a quote, RFC 4180)."""
+    return '"' + text.replace('"', '""') + '"' if any(c in text for c in ',"\n') else text
+
+
 def missing_inputs(columns, unmapped) -> list:
     """File-level findings (row -1), one per input column that stops a measure."""
     have = set(columns)
@@ -65,9 +71,11 @@ def missing_inputs(columns, unmapped) -> list:
         hint = (
             f" Closest unmapped column{'s' if len(close) > 1 else ''}: "
             + ", ".join(repr(c) for c in close)
-            + f". To use it, pass --columns with a file holding the line: {close[0]},{field}"
+            + f". To use it, pass --columns with a CSV file of two lines: header,field and "
+            f"{_csv_cell(close[0])},{field}"
             if close
-            else f" Add a column {field!r} or map yours with --columns (a CSV of header,field lines)."
+            else f" Add a column {field!r} or map yours with --columns (a CSV file whose first "
+            "line is header,field, then one line per column: your header,field name)."
         )
         parts.append(
             fnd.make(
