@@ -214,3 +214,13 @@ def test_ambiguous_dates_are_one_column_finding_and_the_order_can_be_chosen():
     b = wallstress.analyse_with_findings(df, wallstress.Options(date_order="mdy"))
     assert b.canonical["study_date"].iloc[0] == pd.Timestamp("2021-04-03")
     assert "date_order_assumed" not in set(b.findings["code"])
+
+
+def test_trailer_words_only_as_whole_words():
+    """ "Total" and "End of export: 40 studies" are trailers; an id such as "NOTE-12" on a row with
+    few cells is a study with gaps, flagged as such (common practice, no source)."""
+    from wallstress.prepare.rows import _TRAILER
+
+    assert _TRAILER.match("Total") and _TRAILER.match("End of export: 40 studies")
+    assert _TRAILER.match("n = 40") and _TRAILER.match("* measured off-axis")
+    assert not _TRAILER.match("NOTE-12") and not _TRAILER.match("Summary7")

@@ -16,9 +16,12 @@ import pandas as pd
 from wallstress import findings as fnd
 from wallstress.schema import fields as schema
 
+# the first word of a trailer, total or footnote row, as a whole word ("Total", "End of export: 40
+# studies", "n = 40", "* measured ..."); "NOTE-12" or "Summary7" are not (common practice, no source)
 _TRAILER = re.compile(
-    r"^\s*(?:total|totals|sum|end\s+of|n\s*=|count|average|mean|median|footnote|note|notes|"
-    r"source|generated|exported|export|printed|page\s+\d|\*|#\s|summe|gesamt|fin\s+de|nombre)",
+    r"^\s*(?:(?:total|totals|sum|end\s+of|count|average|mean|median|footnote|note|notes|source|"
+    r"generated|exported|export|printed|page\s+\d+|summe|gesamt|fin\s+de|nombre)(?=$|[\s:=.,;(])"
+    r"|n\s*=|\*|#\s)",
     re.IGNORECASE,
 )
 
