@@ -206,7 +206,8 @@ def _read_csv_text(p: Path, data: bytes, max_rows, columns) -> StudyTable:
     )
 
 
-_PLAIN_NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
+# a number written plainly (what a CSV reader and a spreadsheet read as a number)
+PLAIN_NUMBER = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
 
 
 _COMMA_NUM = r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?"
@@ -242,7 +243,7 @@ def _numbers_in(sub: pd.DataFrame, allow_comma: bool) -> tuple[dict[int, np.ndar
     nonempty = sub.notna().to_numpy()
     # columns that are not text at all (already numbers) are left alone
     any_text = is_text.any(axis=0)
-    plain = cell_mask(pc.match_substring_regex(t, f"^(?:{_PLAIN_NUM})$"), shape)
+    plain = cell_mask(pc.match_substring_regex(t, f"^(?:{PLAIN_NUMBER})$"), shape)
     is_plain = any_text & nonempty.any(axis=0) & (plain | ~nonempty).all(axis=0)
     is_comma = np.zeros(k, dtype=bool)
     if allow_comma:

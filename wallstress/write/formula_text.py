@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from wallstress import findings as _findings
+from wallstress.read.delimited import PLAIN_NUMBER
 
 FORMULA_PREFIXES: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r")
 """First characters that make a spreadsheet program treat a CSV text cell as a formula.
@@ -25,7 +26,7 @@ Common practice, no source (the usual CSV-injection list: ``= + - @``, tab and c
 FORMULA_LIKE_CODE = "formula_like_text"
 
 _HYPERLINK_RE = re.compile(r"^\s*(?:https?://|ftp://|mailto:|file:|www\.|\\\\)", re.IGNORECASE)
-_PLAIN_NUMBER = r"\s*[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?\s*"
+_PLAIN_NUMBER = rf"\s*{PLAIN_NUMBER}\s*"
 
 
 def _text_values(col: pd.Series):
