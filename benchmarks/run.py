@@ -44,6 +44,44 @@ TARGETS = {"analyse": 1.5, "csv": 1.3, "xlsx": 1.5, "rss": 3.0}
 # invented data
 
 
+SHAPES = {
+    "plain": "no ids, no dates",
+    "int_ids": "integer ids, ISO text dates",
+    "text_ids": "text ids (ST-0000001, patient P000001), ISO text dates",
+    "repeats": "each study repeated 3-4 times (most rows flagged), text ids and dates",
+}
+
+
+def registry_export(n: int, shape: str, seed: int = 7) -> pd.DataFrame:
+    """n invented studies in one of the ``SHAPES`` a real registry export has (no real people).
+
+    ``plain`` has integer study ids only; ``int_ids`` adds whole-number patient ids (about 3
+    studies per patient) and ISO text dates over ten years; ``text_ids`` writes both ids as text
+    with leading zeros (``ST-0000001``, ``P000001``); ``repeats`` is ``text_ids`` made of
+    n / 3.5 distinct studies each written 3 or 4 times (same id, same date: every row is a repeat
+    and carries a finding), with 1 % of the rows given a typo value (LVIDd in mm in a cm column).
+    """
+    if shape == "plain":
+        return invented_studies(n, seed)
+    if shape == "int_ids":
+        return invented_studies(n, seed, follow_up=True)
+    if shape == "text_ids":
+        df = invented_studies(n, seed, follow_up=True)
+        df["study_id"] = pd.Series(np.arange(n)).map("ST-{:07d}".format)
+        df["patient_id"] = df["patient_id"].map("P{:06d}".format)
+        return df
+    if shape == "repeats":
+        rng = np.random.default_rng(seed + 2)
+        distinct = registry_export(max(1, int(n / 3.5)) + 1, "text_ids", seed)
+        times = rng.integers(3, 5, len(distinct))
+        rows = np.repeat(np.arange(len(distinct)), times)[:n]
+        df = distinct.iloc[rows].reset_index(drop=True)
+        typo = rng.random(len(df)) < 0.01
+        df.loc[typo, "lvidd_cm"] = df.loc[typo, "lvidd_cm"] * 10
+        return df
+    raise ValueError(f"unknown shape {shape!r}; one of {sorted(SHAPES)}")
+
+
 def invented_studies(n: int, seed: int = 7, *, follow_up: bool = False) -> pd.DataFrame:
     """n invented echo studies under canonical names (cm, kg, mmHg); no real people.
 
