@@ -17,6 +17,11 @@ real people), so the results hold on any machine; the absolute times are printed
    table plus the columns analyse adds (``DataFrame.memory_usage(deep=True)``; the result table
    repeats the input's columns, counted once); and of ``analyse_chunked``.
 5. Time per row across sizes (linear growth shows as a flat column).
+6. The shapes of a real registry export (``SHAPES``: no ids; integer ids and ISO text dates; text
+   ids with leading zeros; every study repeated 3-4 times with 1 % typo values), 10^6 rows each:
+   ``analyse_with_findings`` vs the bare numpy of every measure, with the spread between turns.
+   ``--shapes-only`` runs just these, e.g. on an older checkout put first on ``PYTHONPATH``.
+7. CSV end to end on text ids and ISO text dates as well as on plain numbers.
 
 Writes benchmarks/RESULTS.md (machine, versions, table). ``--quick`` finishes in under a minute.
 """
@@ -37,7 +42,8 @@ import numpy as np
 import pandas as pd
 
 HERE = Path(__file__).resolve().parent
-TARGETS = {"analyse": 1.5, "csv": 1.3, "xlsx": 1.5, "rss": 3.0}
+TARGETS = {"analyse": 1.5, "csv": 1.3, "xlsx": 1.5, "rss": 2.5}
+SHAPE_TARGETS = {"text_ids": 1.3, "repeats": 2.0}  # issue 17
 
 
 # --------------------------------------------------------------------------------------------------
@@ -488,11 +494,48 @@ def bench_analyse(sizes, repeats) -> list[dict]:
     return rows
 
 
-def bench_csv(n, repeats, tmp: Path) -> dict:
+def bench_shapes(n: int, repeats: int) -> list[dict]:
+    """``analyse_with_findings`` on each of the ``SHAPES`` of a real registry export vs the bare
+    numpy of every measure on the same rows (which parses no ids or dates and checks nothing),
+    taking turns; the spread is the lowest and highest ratio of one turn."""
+    import wallstress
+
+    k = _constants()
+    wallstress.analyse(invented_studies(100))
+    rows = []
+    for shape, label in SHAPES.items():
+        df = registry_export(n, shape)
+        ratios, tool, base = [], [], []
+        for _ in range(repeats):
+            t_tool, t_base = best_of_interleaved(
+                [
+                    lambda d=df: wallstress.analyse_with_findings(d),
+                    lambda d=df: bare_all_measures(d, k),
+                ],
+                1,
+            )
+            tool.append(t_tool)
+            base.append(t_base)
+            ratios.append(t_tool / t_base)
+        rows.append(
+            {
+                "bench": f"analyse, registry export: {label}",
+                "rows": n,
+                "tool_s": min(tool),
+                "baseline_s": min(base),
+                "spread": (min(ratios), max(ratios)),
+                "target": SHAPE_TARGETS.get(shape),
+            }
+        )
+        del df
+    return rows
+
+
+def bench_csv(n, repeats, tmp: Path, shape: str = "plain") -> dict:
     from wallstress.jobs import analyse_file
 
     src = tmp / "studies.csv"
-    invented_studies(n).to_csv(src, index=False)
+    registry_export(n, shape).to_csv(src, index=False)
     k = _constants()
 
     def tool():
@@ -502,7 +545,7 @@ def bench_csv(n, repeats, tmp: Path) -> dict:
         bare_all_measures(pd.read_csv(src), k).to_csv(tmp / "base.csv", index=False)
 
     return {
-        "bench": "CSV end to end (analyse_file, in process)",
+        "bench": f"CSV end to end (analyse_file, in process): {SHAPES[shape]}",
         "rows": n,
         "tool_s": best_of(tool, repeats),
         "baseline_s": best_of(base, repeats),
@@ -625,9 +668,10 @@ def render(results: list[dict], info: dict, argv: list[str]) -> str:
             ratio = r["tool_s"] / r["baseline_s"]
             target = f"<= {r['target']:g}" if r.get("target") else ""
             ok = "" if not r.get("target") else (" (met)" if ratio <= r["target"] else " (NOT met)")
+            spread = " (runs {:.2f}-{:.2f})".format(*r["spread"]) if r.get("spread") else ""
             lines.append(
                 f"| {r['bench']} | {r['rows']:,} | {r['tool_s']:.3f} | {r['baseline_s']:.3f} | "
-                f"{ratio:.2f}{ok} | {target} | {1e6 * r['tool_s'] / r['rows']:.2f} |"
+                f"{ratio:.2f}{spread}{ok} | {target} | {1e6 * r['tool_s'] / r['rows']:.2f} |"
             )
     lines += ["", "| memory | rows | peak RSS [MiB] | detail |", "|---|---:|---:|---|"]
     for r in results:
@@ -657,6 +701,11 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--sizes", type=int, nargs="+", help="row counts for the analyse benchmark")
     ap.add_argument("--repeats", type=int, default=None)
     ap.add_argument("--out", type=Path, default=HERE / "RESULTS.md")
+    ap.add_argument(
+        "--shapes-only",
+        action="store_true",
+        help="only the registry-export shapes (e.g. to measure an older checkout: PYTHONPATH=it)",
+    )
     args = ap.parse_args(argv)
     quick = args.quick
     repeats = args.repeats or (1 if quick else 3)
@@ -667,15 +716,22 @@ def main(argv: list[str] | None = None) -> int:
     results: list[dict] = []
     with tempfile.TemporaryDirectory(prefix="wallstress-bench-") as d:
         tmp = Path(d)
+        shapes_n = 10**5 if quick else 10**6
         steps = [
+            lambda: results.extend(bench_shapes(shapes_n, max(repeats, 3))),
             lambda: results.extend(bench_analyse(sizes, repeats)),
             lambda: results.append(bench_csv(3 * 10**4 if quick else 3 * 10**5, repeats, tmp)),
+            lambda: results.append(
+                bench_csv(3 * 10**4 if quick else 3 * 10**5, repeats, tmp, "text_ids")
+            ),
             lambda: results.append(bench_xlsx(5 * 10**3 if quick else 10**5, 1, tmp)),
             lambda: results.append(bench_rss(3 * 10**4 if quick else 10**6, tmp)),
             lambda: results.append(
                 bench_chunked(10**5 if quick else 10**6, 2 * 10**4 if quick else 2 * 10**5, tmp)
             ),
         ]
+        if args.shapes_only:
+            steps = steps[:1]
         if args.full:
             steps.append(lambda: results.append(bench_chunked(10**7, 2 * 10**5, tmp)))
         for step in steps:

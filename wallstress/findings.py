@@ -96,6 +96,25 @@ def text_codes(values, to_text) -> tuple[np.ndarray, list[str]]:
     return tcodes[key], [str(c) for c in categories]
 
 
+def _value_codes(values) -> tuple[np.ndarray, list[str]]:
+    """The ``value`` column's codes and texts: :func:`text_codes` with :func:`_as_text`, and for a
+    pandas text column its own hash (Arrow's for Arrow text) without a Python step per distinct
+    value (each text is its own text; missing is "")."""
+    if not (isinstance(values, pd.Series) and isinstance(values.dtype, pd.StringDtype)):
+        return text_codes(values, _as_text)
+    key, uniques = pd.factorize(values)  # -1 for missing
+    texts = uniques.to_numpy(dtype=object)
+    missing = key < 0
+    if missing.any():
+        empty_at = np.flatnonzero(texts == "")
+        if empty_at.size:
+            key = np.where(missing, empty_at[0], key)
+        else:
+            key = np.where(missing, texts.size, key)
+            texts = np.append(texts, "")
+    return key, texts.tolist()
+
+
 def empty(*, categorical: bool = False) -> pd.DataFrame:
     """An empty findings table with the right columns and dtypes (text columns Categorical if asked)."""
     if not categorical:
@@ -153,7 +172,7 @@ def make(
     if values is None:
         value = _constant("", n)
     else:
-        value = _categorical(*text_codes(values, _as_text))
+        value = _categorical(*_value_codes(values))
     if messages is None:
         msg = _constant(message, n)
     else:
@@ -222,7 +241,7 @@ def concat(parts, *, categorical: bool = False) -> pd.DataFrame:
     cols: dict[str, object] = {"row": rows}
     for c in TEXT_COLUMNS:
         cats = [_as_categorical(p[c], c) for p in parts]
-        merged = cats[0] if len(cats) == 1 else union_categoricals(cats)
+        merged = cats[0] if len(cats) == 1 else _union(cats, c)
         if order is not None:
             merged = pd.Categorical.from_codes(
                 merged.codes[order], dtype=merged.dtype, validate=False
@@ -230,6 +249,26 @@ def concat(parts, *, categorical: bool = False) -> pd.DataFrame:
         cols[c] = merged
     out = pd.DataFrame(cols)
     return out if categorical else as_text(out)
+
+
+def _union(cats: list[pd.Categorical], column: str) -> pd.Categorical:
+    """The parts of one text column joined, categories in order of first appearance (as
+    ``union_categoricals`` gives them) but hashed once in all: each part's codes are moved
+    through a small table instead of looking its categories up in the whole union (which, with
+    10^5 distinct values in one part, is a hash of the union per part)."""
+    if column == "severity":  # one fixed dtype for every part
+        return union_categoricals(cats)
+    sizes = [len(c.categories) for c in cats]
+    every = np.concatenate([c.categories.to_numpy(dtype=object) for c in cats])
+    where, union = pd.factorize(every)
+    codes = []
+    start = 0
+    for cat, size in zip(cats, sizes, strict=True):
+        move = np.append(where[start : start + size], -1)  # code -1 (missing) stays -1
+        codes.append(move[cat.codes])
+        start += size
+    dtype = pd.CategoricalDtype(pd.Index(union, dtype=object), ordered=False)
+    return _categorical(np.concatenate(codes), union, dtype)
 
 
 def column_level_keys(findings: pd.DataFrame) -> list[tuple[str, ...]]:

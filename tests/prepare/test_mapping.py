@@ -193,7 +193,7 @@ def test_ids_as_text():
     assert parse_ids(pd.Series([1001.0, np.nan, 7.5])).tolist()[0] == "1001"
     out = parse_ids(pd.Series([1001.0, " A-7 ", "", None], dtype=object))
     assert out.iloc[0] == "1001" and out.iloc[1] == "A-7"
-    assert out.iloc[2:].isna().all() and out.dtype == object
+    assert out.iloc[2:].isna().all() and pd.api.types.is_string_dtype(out.dtype)
 
 
 def test_whole_number_ids_are_exact_integers():
@@ -324,7 +324,7 @@ def test_fuzz_map_columns(raw, unit_option):
             first = raw.loc[:, [c == src for c in raw.columns]].iloc[:, 0]  # the one read
             assert first.dtype.kind in "iuf"
         else:  # identifiers as text
-            assert col.dtype == object
+            assert pd.api.types.is_string_dtype(col.dtype)
             assert all(isinstance(v, str) or pd.isna(v) for v in col)
     if len(m.findings):
         assert m.findings["row"].between(-1, max(len(raw) - 1, -1)).all()

@@ -336,8 +336,9 @@ def parse_ids(s: pd.Series) -> pd.Series:
 
     A column of whole numbers (1001, or 1001.0 as a sheet stores it) comes back as pandas'
     nullable ``Int64``: the number is the identifier, and ids compare and group as integers
-    without one text per row. Any other column comes back as object text, 1001.0 in it written
-    "1001".
+    without one text per row. Any other column comes back as pandas' text dtype (Arrow-backed in
+    pandas 3; a column of text stays Arrow text, never one Python object per cell), 1001.0 in it
+    written "1001".
     """
     if pd.api.types.is_numeric_dtype(s.dtype) and not pd.api.types.is_bool_dtype(s.dtype):
         if s.dtype.kind == "i" or (s.dtype.kind == "u" and s.dtype.itemsize < 8):  # exact
@@ -347,15 +348,37 @@ def parse_ids(s: pd.Series) -> pd.Series:
         if not (np.isfinite(v) & ~integral).any():
             whole = np.where(integral, v, 0).astype("int64")
             return pd.Series(pd.arrays.IntegerArray(whole, ~integral))
-        return pd.Series(_ids_as_text(v), dtype=object)
+        return pd.Series(_ids_as_text(v), dtype=_TEXT_DTYPE)
+    text = _arrow_text(s)
+    if text is None and s.dtype == object:
+        text = _all_text(s.to_numpy(dtype=object))
+    if text is not None:  # text throughout (the usual export): stays Arrow text, no object per cell
+        t = pc.utf8_trim_whitespace(text)
+        t = pc.if_else(pc.equal(t, ""), pa.scalar(None, t.type), t)
+        if getattr(_TEXT_DTYPE, "storage", None) != "pyarrow":  # pragma: no cover - pandas < 3
+            return pd.Series(t.to_numpy(zero_copy_only=False), dtype=object)
+        return pd.Series(pd.array(t, dtype=_TEXT_DTYPE))
     n = len(s)
     arr = s.to_numpy(dtype=object)
     is_float = np.fromiter((type(x) is float for x in arr), dtype=bool, count=n)
     t = _as_text(s).reset_index(drop=True)
     if is_float.any():
         t[is_float] = _ids_as_text(arr[is_float].astype("float64"))
-    t = t.astype(object).where(t.notna() & (t != ""), np.nan)
-    return pd.Series(t.to_numpy(dtype=object), dtype=object)
+    return t.where(t.notna() & (t != ""))
+
+
+# pandas' own dtype for a column of text (``str``, Arrow-backed, in pandas 3)
+_TEXT_DTYPE = pd.Series(np.array(["a"], dtype=object)).dtype
+
+
+def _all_text(arr: np.ndarray) -> pa.Array | None:
+    """An object column as one Arrow string array when every present cell is a ``str`` (missing
+    as None or NaN), else None (numbers among the text: the general path writes each as an id)."""
+    try:
+        text = pa.array(arr, from_pandas=True)
+    except (pa.ArrowInvalid, pa.ArrowTypeError):
+        return None
+    return text if pa.types.is_string(text.type) or pa.types.is_large_string(text.type) else None
 
 
 def _ids_as_text(v: np.ndarray) -> np.ndarray:

@@ -63,7 +63,8 @@ class Mapped:
         numbers float64 in internal units (a read-only view of the user's column when no
         conversion is needed), ``sex`` a Categorical of "F"/"M" (NaN where unread),
         ``study_date`` datetime64[ns] (NaT where unreadable), ids nullable ``Int64`` when the
-        column holds whole numbers only, else text (object) with NaN for empty.
+        column holds whole numbers only, else text (pandas' text dtype, Arrow-backed in pandas 3)
+        with NaN for empty.
     mapping : list of dict
         One dict per mapped column: ``source_column``, ``field``, ``unit_from``, ``unit_basis``
         (one of ``UNIT_BASES``; "" for non-numeric fields), ``factor``.

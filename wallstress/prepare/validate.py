@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from wallstress import findings as fnd
 from wallstress.schema.fields import BY_NAME, SEXES
@@ -67,8 +69,8 @@ class _Check:
         label = self.labels.get(field)
         if self.raw is not None and label in self.raw.columns:
             cells = self.raw[label].iloc[rows]  # only the rows flagged, as the user wrote them
-            if pd.api.types.is_string_dtype(cells.dtype) and cells.dtype != object:
-                shown = cells.fillna("").to_numpy(dtype=str)  # text: no Python type per cell
+            if isinstance(cells.dtype, pd.StringDtype):
+                shown = cells.reset_index(drop=True)  # text: hashed as text, no object per cell
             else:
                 shown = cells.to_numpy()
         else:
@@ -307,14 +309,28 @@ def _repeated_ids(sid: pd.Series) -> np.ndarray:
     """True on every row whose identifier (an integer or a text; missing for none) appears on
     another row too.
 
-    Integer ids (``Int64``, as ids written as whole numbers are read) are compared as integers: a
-    strictly increasing column (the usual export) is seen to hold no repeats in one pass. Texts
-    are hashed (about a quarter of a second per 10^6).
+    Integer ids (``Int64``, as ids written as whole numbers are read) are compared as integers,
+    Arrow text as text: a strictly increasing column (the usual export) is seen to hold no repeats
+    in one pass. Otherwise the ids are hashed once (about 0.15 s per 10^6 texts on 2 cores).
     """
     present = sid.notna().to_numpy()
-    if isinstance(sid.dtype, pd.Int64Dtype):  # ids read from whole numbers (cell_parse.parse_ids)
+    if isinstance(sid.dtype, pd.Int64Dtype):  # ids read from whole numbers (cells.parse_ids)
         return _repeated_integers(sid.to_numpy(dtype="int64", na_value=0), present)
-    return sid.duplicated(keep=False).to_numpy() & present
+    if isinstance(sid.dtype, pd.StringDtype) and sid.dtype.storage == "pyarrow" and present.all():
+        text = pa.chunked_array(pa.array(sid.array)).combine_chunks()
+        if len(text) < 2 or pc.all(pc.greater(text[1:], text[:-1])).as_py():  # increasing
+            return np.zeros(len(text), dtype=bool)
+    codes, _ = pd.factorize(sid)  # Arrow's hash for Arrow text; -1 for missing
+    return _seen_twice(codes)
+
+
+def _seen_twice(codes: np.ndarray) -> np.ndarray:
+    """True where a code (>= 0) occurs more than once; -1 (missing) never repeats."""
+    present = codes >= 0
+    counts = np.bincount(codes[present]) if present.any() else np.zeros(0, dtype=np.int64)
+    out = np.zeros(codes.size, dtype=bool)
+    out[present] = counts[codes[present]] > 1
+    return out
 
 
 def _repeated_pairs(a: pd.Series, b: pd.Series) -> np.ndarray:
@@ -328,7 +344,8 @@ def _repeated_pairs(a: pd.Series, b: pd.Series) -> np.ndarray:
     cb, ub = pd.factorize(b)
     have = (ca >= 0) & (cb >= 0)
     key = ca.astype(np.int64) * (len(ub) + 1) + cb
-    return pd.Series(key).duplicated(keep=False).to_numpy() & have
+    pair, _ = pd.factorize(np.where(have, key, -1), use_na_sentinel=False)
+    return _seen_twice(np.where(have, pair, -1))
 
 
 def _repeated_integers(key: np.ndarray, present: np.ndarray) -> np.ndarray:
