@@ -506,6 +506,8 @@ def bench_shapes(n: int, repeats: int) -> list[dict]:
     for shape, label in SHAPES.items():
         df = registry_export(n, shape)
         ratios, tool, base = [], [], []
+        wallstress.analyse_with_findings(df)  # warm-up turn, untimed (first-touch memory)
+        bare_all_measures(df, k)
         for _ in range(repeats):
             t_tool, t_base = best_of_interleaved(
                 [
