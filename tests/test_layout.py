@@ -37,6 +37,7 @@ RANK = {
     "jobs": 6,
     "chunked": 6,
     "cli": 7,
+    "web": 7,
 }
 SHARED = {"errors", "options", "findings", "progress", "bundled", "__init__"}
 

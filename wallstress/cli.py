@@ -6,7 +6,6 @@ and what to do); 2 usage; 3 with --strict when any row has an error finding.
 
 from __future__ import annotations
 
-import errno
 import sys
 import traceback
 from enum import Enum
@@ -17,7 +16,7 @@ import typer
 from wallstress import __version__
 from wallstress.analysis.references import list_sets, load_set
 from wallstress.chunked import analyse_chunked
-from wallstress.errors import WallstressError
+from wallstress.errors import UNEXPECTED, describe
 from wallstress.jobs import (
     analyse_file,
     calibrate_file,
@@ -76,20 +75,6 @@ def _say(message: str, code: int) -> None:
     raise typer.Exit(code)
 
 
-def _os_message(exc: OSError) -> str:
-    """What went wrong with a file, in words, and what to do."""
-    where = f" ({exc.filename})" if exc.filename else ""
-    if exc.errno == errno.ENOSPC:
-        return f"the disk is full{where}; free some space or write elsewhere with -o (nothing was written)"
-    if exc.errno in (errno.EACCES, errno.EPERM, errno.EROFS):
-        return f"not allowed to write or read{where}; check the folder's permissions or choose another -o"
-    if exc.errno == errno.EISDIR:
-        return f"a folder was given where a file is needed{where}; give a file name"
-    if exc.errno == errno.ENAMETOOLONG:
-        return f"a file name is too long{where}; choose a shorter one"
-    return f"{exc.strerror or exc.__class__.__name__}{where}"
-
-
 def _guard(fn, *args, inputs=(), **kwargs):
     """Run a job; every failure becomes one line on stderr and an exit code (never a traceback).
 
@@ -98,25 +83,12 @@ def _guard(fn, *args, inputs=(), **kwargs):
     try:
         with protected_inputs(*inputs):
             return fn(*args, **kwargs)
-    except WallstressError as exc:
-        _say(str(exc) or exc.__class__.__name__, getattr(exc, "exit_code", EXIT_INPUT))
-    except ValueError as exc:  # a wrong option value that slipped past typer
-        _say(str(exc), 2)
-    except KeyboardInterrupt:
-        _say("interrupted; no partial output was left", 130)
-    except MemoryError:
-        _say(
-            "not enough memory for this file; for a large CSV or parquet use --chunk-rows 200000",
-            EXIT_INPUT,
-        )
-    except OSError as exc:
-        _say(_os_message(exc), EXIT_INPUT)
-    except Exception as exc:  # never a bare traceback for a user's file
-        _say(
-            f"unexpected problem ({exc.__class__.__name__}: {exc}); run again with --debug and "
-            "report it with the traceback",
-            EXIT_INPUT,
-        )
+    except (Exception, KeyboardInterrupt) as exc:  # never a bare traceback for a user's file
+        message, code = describe(exc)
+        if code == UNEXPECTED:
+            message += "; run again with --debug and report it with the traceback"
+            code = EXIT_INPUT
+        _say(message, code)
 
 
 def _options(
@@ -473,6 +445,30 @@ def demo(
     for line in result.notes:
         typer.echo(line)
     typer.echo(f"\nAll outputs are in {folder}/")
+
+
+@app.command()
+def serve(
+    port: int = typer.Option(8765, "--port", "-p", help="Port of the page (1024-65535)."),
+    host: str = typer.Option(
+        "127.0.0.1",
+        "--host",
+        help="Address to listen on. Anything but this computer (127.0.0.1) lets other "
+        "computers reach the page: a warning is printed.",
+    ),
+    no_browser: bool = typer.Option(False, "--no-browser", help="Do not open a browser."),
+    max_upload_mb: float = typer.Option(
+        200, "--max-upload-mb", help="Largest study list the page takes, in MB."
+    ),
+):
+    """A local web page for people who don't use a terminal: upload, see, download."""
+    from wallstress.web.server import serve as run_server
+
+    if not 1024 <= port <= 65535:
+        _say(f"--port {port} is not usable; choose a port from 1024 to 65535", 2)
+    if not max_upload_mb > 0:
+        _say(f"--max-upload-mb {max_upload_mb} is not usable; give a size above 0", 2)
+    _guard(run_server, host, port, open_browser=not no_browser, max_upload_mb=max_upload_mb)
 
 
 def main() -> None:

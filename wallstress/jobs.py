@@ -201,7 +201,8 @@ def track_file(
 def report_file(
     path: str | Path, out: str | Path, options: Options | None = None, *, figures_dir=None
 ) -> Path:
-    """One self-contained HTML report; per-patient pages when patients have several studies."""
+    """One self-contained HTML report; the cohort over time and per-patient pages when the list
+    follows patients over time (``tracking.track.is_longitudinal``)."""
 
     options = options or Options()
     out = Path(out)
@@ -211,13 +212,12 @@ def report_file(
             f"--figures {figures_dir} is a file; give a folder for the figures (it is created)"
         )
     from wallstress.report.page import write_report
-    from wallstress.tracking.track import track
+    from wallstress.tracking.track import is_longitudinal, track
 
     with protected_inputs(Path(path), *reference_files(options)):
         _, analysis = _read_and_analyse(path, options)
         tracking = None
-        frame = analysis.canonical
-        if "patient_id" in frame.columns and frame["patient_id"].duplicated().any():
+        if is_longitudinal(analysis.canonical):  # a lab's cross-sectional list: no patient pages
             tracking = track(analysis, options)
         return write_report(analysis, out, tracking=tracking, figures_dir=figures_dir)
 

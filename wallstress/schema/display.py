@@ -10,7 +10,7 @@ from __future__ import annotations
 import re
 
 from wallstress.schema.fields import BY_NAME
-from wallstress.schema.outputs import OUTPUT_UNITS
+from wallstress.schema.outputs import BY_OUTPUT, OUTPUT_UNITS
 from wallstress.schema.vocabulary import OUT
 
 # Name endings -> unit, longest first (for columns of other tables, e.g. tracking).
@@ -104,3 +104,68 @@ def column_unit(name: str) -> str:
 def canonical_header(text) -> str:
     """Undo :func:`header_with_unit`: ``"lv_mass_g [g]"`` -> ``"lv_mass_g"`` (for reading outputs back)."""
     return re.sub(r"\s*\[[^\]]*\]\s*$", "", str(text))
+
+
+# What a clinician reads for the input fields shown beside the measures (the trade's
+# abbreviations; the outputs' labels live in the output registry).
+_FIELD_LABELS: dict[str, str] = {
+    "study_id": "Study",
+    "patient_id": "Patient",
+    "study_date": "Date",
+    "sex": "Sex",
+    "age_years": "Age",
+    "height_cm": "Height",
+    "weight_kg": "Weight",
+    "sbp_mmhg": "SBP",
+    "dbp_mmhg": "DBP",
+    "hr_bpm": "HR",
+    "ivsd_cm": "IVSd",
+    "lvidd_cm": "LVIDd",
+    "pwd_cm": "PWd",
+    "ivss_cm": "IVSs",
+    "lvids_cm": "LVIDs",
+    "pws_cm": "PWs",
+}
+
+# The compact set of columns a clinician scans first (web page, key-measures sheet).
+KEY_COLUMNS: tuple[str, ...] = (
+    "study_id",
+    "patient_id",
+    "study_date",
+    "sex",
+    OUT.bsa_m2,
+    OUT.lv_mass_g,
+    OUT.lvmi_bsa_g_m2,
+    OUT.lvmi_h27_g_m2_7,
+    OUT.rwt,
+    OUT.geometry,
+    OUT.mess_kdyn_cm2,
+    OUT.cess_kdyn_cm2,
+    OUT.fs_pct,
+    OUT.ef_teichholz_pct,
+    OUT.midwall_fs_pct,
+    OUT.flags,
+)
+
+
+def label(name: str) -> str:
+    """What a clinician reads for a column: ``"LVMI/BSA (g/m2)"`` for ``lvmi_bsa_g_m2``; the name
+    itself when neither the output registry nor the field list labels it."""
+    name = str(name)
+    if name in BY_OUTPUT:
+        out = BY_OUTPUT[name]
+        text, unit = out.label, out.unit if out.is_number else ""
+    elif name in _FIELD_LABELS:
+        text, unit = _FIELD_LABELS[name], BY_NAME[name].unit if name in BY_NAME else ""
+    else:
+        return name
+    unit = "" if unit == "ratio" else unit
+    return f"{text} ({unit})" if unit else text
+
+
+def decimals(name: str) -> int | None:
+    """How many decimals a reader needs for a column (None: text or not known)."""
+    out = BY_OUTPUT.get(str(name))
+    if out is not None:
+        return out.decimals
+    return {"m2": 2, "cm": 2, "kg": 1, "mmHg": 0, "bpm": 0, "years": 0}.get(column_unit(str(name)))

@@ -97,6 +97,24 @@ class Tracking:
     methods: dict = field(default_factory=dict)
 
 
+# A study list is followed over time when at least this share of its studies belong to patients
+# with two or more studies (a lab's list, one study per patient with a few repeats, is not).
+# Common practice, no source: the line between a cross-sectional and a longitudinal list.
+LONGITUDINAL_SHARE = 0.5
+
+
+def is_longitudinal(canonical: pd.DataFrame) -> bool:
+    """True when the list follows patients over time: it has patient ids and at least
+    ``LONGITUDINAL_SHARE`` of its studies belong to patients with two or more studies."""
+    if "patient_id" not in canonical.columns:
+        return False
+    ids = canonical["patient_id"].dropna()
+    if ids.empty:
+        return False
+    repeated = ids.duplicated(keep=False)
+    return bool(repeated.sum() >= LONGITUDINAL_SHARE * len(ids))
+
+
 def track(
     studies, options=None, *, within_subject_sd_g=None, lsc_g=None, same_day="mean"
 ) -> Tracking:
