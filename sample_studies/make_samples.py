@@ -192,6 +192,20 @@ def normals(rng) -> pd.DataFrame:
     return df.round(3)
 
 
+def _fit_widths(ws) -> None:
+    """Columns wide enough for their header and values (dates as yyyy-mm-dd), so that a
+    spreadsheet program shows every cell, not ###."""
+    from openpyxl.utils import get_column_letter
+
+    for j, column in enumerate(ws.iter_cols(values_only=True), start=1):
+        longest = max(
+            (10 if hasattr(v, "year") else len(f"{v:.6g}" if isinstance(v, float) else str(v)))
+            for v in column
+            if v is not None
+        )
+        ws.column_dimensions[get_column_letter(j)].width = min(40, longest + 3)
+
+
 def _write_lab_workbook(df: pd.DataFrame, path: Path) -> None:
     wb = Workbook()
     ws = wb.active
@@ -209,12 +223,14 @@ def _write_lab_workbook(df: pd.DataFrame, path: Path) -> None:
         cell.number_format = "yyyy-mm-dd"
     ws["A1"].comment = Comment("One row per echocardiogram (invented demo data).", "Fernhill lab")
     ws.freeze_panes = "A2"
+    _fit_widths(ws)
     notes = wb.create_sheet("Lab notes")
     notes["A1"] = "Fernhill Community Heart Service (fictional) - study list export"
     notes["A1"].font = Font(bold=True, size=13)
     notes["A3"], notes["B3"] = "Studies in this export", f"=COUNTA(Studies!A2:A{len(df) + 1})"
     notes["A4"], notes["B4"] = "Mean LVIDd [mm]", f"=AVERAGE(Studies!L2:L{len(df) + 1})"
     notes["B3"].comment = Comment("A formula of the lab's own: it must survive.", "Fernhill lab")
+    notes.column_dimensions["A"].width = 30
     wb.defined_names["study_rows"] = DefinedName(
         "study_rows", attr_text=f"Studies!$A$2:$Q${len(df) + 1}"
     )
@@ -227,6 +243,13 @@ def main() -> None:
     f = followup(rng)
     with pd.ExcelWriter(HERE / "fernhill_followup.xlsx", engine="openpyxl") as xw:
         f.to_excel(xw, sheet_name="Follow-up", index=False)
+        ws = xw.sheets["Follow-up"]
+        for column in ws.iter_cols(min_row=2):
+            for cell in column:
+                if hasattr(cell.value, "year"):
+                    cell.number_format = "yyyy-mm-dd"
+        _fit_widths(ws)
+        ws.freeze_panes = "A2"
     normals(rng).to_csv(HERE / "fernhill_normals.csv", index=False)
     print(f"wrote sample studies to {HERE}")
 

@@ -45,7 +45,7 @@ class _Part:
     sheet: str
     key: str  # "" for the main file
     frame: pd.DataFrame
-    unit_columns: str = "all"  # "all" or "outputs"
+    unit_columns: str = "all"  # "all", "outputs", "labels" (readable headers) or "none"
 
 
 def _sidecar(out: Path, key: str, suffix: str | None = None) -> Path:

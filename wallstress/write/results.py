@@ -32,6 +32,8 @@ import pyarrow.compute as pc
 
 from wallstress import findings as _findings
 from wallstress.errors import OutputError
+from wallstress.schema.display import KEY_COLUMNS
+from wallstress.schema.vocabulary import OUT, in_words
 from wallstress.write import safety
 from wallstress.write.flat import (
     _write_flat,
@@ -62,8 +64,12 @@ SHEET_FINDINGS = "wallstress findings"
 SHEET_METHODS = "wallstress methods"
 
 
+SHEET_KEY_MEASURES = "wallstress key measures"
+
+
 DEFAULT_SHEET_NAMES: dict[str, str] = {
     "results": SHEET_RESULTS,
+    "key_measures": SHEET_KEY_MEASURES,
     "findings": SHEET_FINDINGS,
     "methods": SHEET_METHODS,
 }
@@ -121,10 +127,14 @@ def write_results(
     table = analysis.table
     if in_place or Path(out_path or "").suffix.lower() == ".xlsx":
         table = numbers_as_numbers(table, getattr(source, "numbers", None))
-    parts = [
-        _Part(names["results"], "", table, unit_columns="outputs"),
-        _Part(names["findings"], results_keys()[1], _findings_for_writing(analysis.findings)),
-    ]
+    parts = [_Part(names["results"], "", table, unit_columns="outputs")]
+    if in_place or Path(out_path or "").suffix.lower() == ".xlsx":  # a sheet to read and print
+        parts.append(
+            _Part(names["key_measures"], "", key_measures(analysis), unit_columns="labels")
+        )
+    parts.append(
+        _Part(names["findings"], results_keys()[1], _findings_for_writing(analysis.findings))
+    )
     return _write_bundle(
         out_path,
         parts,
@@ -134,6 +144,23 @@ def write_results(
         escape_formulas=escape_formulas,
         methods_sheet=names["methods"],
     )
+
+
+def key_measures(analysis) -> pd.DataFrame:
+    """The compact table a clinician reads and prints (``schema.display.KEY_COLUMNS``): one row
+    per study, in the input's order, classes in words; the workbook shows it under readable labels
+    (its columns keep the machine names, which the methods sheet pairs with the labels)."""
+    frame = analysis.frame()
+    frame = frame.loc[:, ~frame.columns.duplicated()]
+    cols = {}
+    for name in KEY_COLUMNS:
+        if name not in frame.columns:
+            continue
+        values = frame[name]
+        if isinstance(values.dtype, pd.CategoricalDtype) and name not in ("sex", OUT.flags):
+            values = values.astype(object).map(lambda v: in_words(v) if isinstance(v, str) else v)
+        cols[name] = values.reset_index(drop=True)
+    return pd.DataFrame(cols)
 
 
 # A number written plainly: the text a spreadsheet shows for the number is the text of the cell

@@ -194,11 +194,39 @@ class _Registries:
             rel_xml.append(self._rel(rid, REL_WORKSHEET, target))
             ct_xml.append(self._override(part, CT_WORKSHEET))
             parts.append(part)
-        self.text[self.wb_part] = _insert_children(wb_text, "sheets", "".join(sheet_xml))
+        wb_text = _insert_children(wb_text, "sheets", "".join(sheet_xml))
         self._bump(self.wb_part, "sheets", len(names))
+        self.text[self.wb_part] = self._print_titles(wb_text, names, p)
         self._add_rels("".join(rel_xml), len(names))
         self._add_overrides("".join(ct_xml), len(names))
         return parts
+
+    def _print_titles(self, wb_text: str, names: list[str], p: str) -> str:
+        """Each new sheet prints its header row on every page (a ``_xlnm.Print_Titles`` name
+        local to the sheet, by its position among the workbook's sheets)."""
+        xml = "".join(
+            f'<{p}definedName name="_xlnm.Print_Titles" localSheetId="{self.n_sheets + i}">'
+            f"{_escape_text(_quoted_sheet(name))}!$1:$1</{p}definedName>"
+            for i, name in enumerate(names)
+        )
+        if re.search(_OPEN_TAG.format(local="definedNames"), wb_text):
+            wb_text = _insert_children(wb_text, "definedNames", xml)
+        else:  # a new <definedNames> where the schema puts it: after these, when present
+            for local in ("externalReferences", "functionGroups", "sheets"):
+                close = list(
+                    re.finditer(
+                        rf"</{re.escape(p)}{local}\s*>|<{re.escape(p)}{local}(?=[\s/])[^>]*/>",
+                        wb_text,
+                    )
+                )
+                if close:
+                    end = close[-1].end()
+                    wb_text = (
+                        wb_text[:end] + f"<{p}definedNames>{xml}</{p}definedNames>" + wb_text[end:]
+                    )
+                    break
+        self._bump(self.wb_part, "definedNames", len(names))
+        return wb_text
 
     def _rel(self, rid: str, rel_type: str, target: str) -> str:
         p = _element_prefix(self._get(self.wb_rels_part), "Relationships")
@@ -301,6 +329,15 @@ class _Registries:
                         )
             out[part] = data
         return out
+
+
+def _quoted_sheet(name: str) -> str:
+    """A sheet name as a formula refers to it: in single quotes, a quote inside doubled."""
+    return "'" + name.replace("'", "''") + "'"
+
+
+def _escape_text(text: str) -> str:
+    return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
 
 def _child(root, local: str):

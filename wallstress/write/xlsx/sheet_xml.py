@@ -410,6 +410,7 @@ def _write_sheet(fh, plan: _Plan, style_ids: dict[str, int]) -> None:
     head = [
         '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n',
         f'<worksheet xmlns="{MAIN_NS}" xmlns:r="{REL_NS}">',
+        '<sheetPr><pageSetUpPr fitToPage="1"/></sheetPr>',  # printed: fit to the page width
         f'<dimension ref="A1:{last}"/>' if n_cols else '<dimension ref="A1"/>',
         '<sheetViews><sheetView workbookViewId="0">',
     ]
@@ -471,7 +472,9 @@ def _write_sheet(fh, plan: _Plan, style_ids: dict[str, int]) -> None:
     if n_cols:
         tail.append(f'<autoFilter ref="A1:{last}"/>')
     tail.append(
-        '<pageMargins left="0.7" right="0.7" top="0.75" bottom="0.75" header="0.3" footer="0.3"/>'
+        '<pageMargins left="0.4" right="0.4" top="0.6" bottom="0.6" header="0.3" footer="0.3"/>'
+        # landscape, one page wide and as many pages long as needed
+        '<pageSetup orientation="landscape" fitToWidth="1" fitToHeight="0"/>'
     )
     tail.append("</worksheet>")
     fh.write("".join(tail).encode("utf-8"))

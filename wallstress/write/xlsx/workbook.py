@@ -20,7 +20,13 @@ from pathlib import Path
 import pandas as pd
 
 from wallstress.errors import OutputError
-from wallstress.schema.display import _NUMBER_FORMATS, column_unit, header_with_unit
+from wallstress.schema.display import (
+    _NUMBER_FORMATS,
+    column_unit,
+    decimals,
+    header_with_unit,
+    label,
+)
 from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.write import safety
 from wallstress.write.methods_sheet import methods_rows
@@ -163,10 +169,17 @@ def _sheet_specs(parts, methods, source, out, report) -> dict:
         elif part.unit_columns == "outputs":
             out_set = set(OUTPUT_COLUMNS)
             headers = [header_with_unit(c) if c in out_set else c for c in columns]
+        elif part.unit_columns == "labels":  # a sheet to read: labels, the registry's decimals
+            headers = [label(c) for c in columns]
         else:
             headers = columns
         formats = {}
-        if part.unit_columns != "none":
+        if part.unit_columns == "labels":
+            for c, h, dtype in zip(columns, headers, frame.dtypes, strict=True):
+                places = decimals(c)
+                if places is not None and pd.api.types.is_float_dtype(dtype):
+                    formats[h] = "0" if places == 0 else "0." + "0" * places
+        elif part.unit_columns != "none":
             for c, h, dtype in zip(columns, headers, frame.dtypes, strict=True):
                 fmt = _NUMBER_FORMATS.get(column_unit(c))
                 if fmt and pd.api.types.is_float_dtype(dtype):

@@ -1,0 +1,116 @@
+"""Our sheets read and print as a clinician needs: the key-measures sheet under readable labels
+with the output registry's decimals, every sheet of ours landscape, one page wide, its header row
+repeated; the user's own sheets untouched; the bundled sample workbook shows its dates.
+
+Labels and decimals are checked against the output registry (the one place they are defined) and
+against the trade's abbreviations (common practice, no source).
+"""
+
+from __future__ import annotations
+
+import shutil
+import subprocess
+
+import openpyxl
+import pytest
+
+from wallstress.jobs import analyse_file, sample_dir
+from wallstress.schema.display import KEY_COLUMNS, label
+from wallstress.schema.outputs import BY_OUTPUT
+
+SAMPLE = sample_dir() / "fernhill_echo_lab.xlsx"
+OURS = (
+    "wallstress results",
+    "wallstress key measures",
+    "wallstress findings",
+    "wallstress methods",
+)
+
+
+@pytest.fixture(scope="module")
+def written(tmp_path_factory):
+    out = tmp_path_factory.mktemp("readable") / "lab.xlsx"
+    analyse_file(SAMPLE, out)
+    return out
+
+
+def test_key_measures_sheet_labels_formats_and_words(written):
+    ws = openpyxl.load_workbook(written)["wallstress key measures"]
+    head = [c.value for c in ws[1]]
+    # the trade's abbreviations with units in brackets (common practice, no source)
+    for expected in (
+        "Study",
+        "Date",
+        "Sex",
+        "LV mass (g)",
+        "LVMI/BSA (g/m2)",
+        "RWT",
+        "Geometry",
+        "mESS (kdyn/cm2)",
+        "cESS (kdyn/cm2)",
+        "Midwall FS (%)",
+        "Flags",
+    ):
+        assert expected in head, expected
+    assert not any("_" in h for h in head)  # no machine names
+    by_label = {label(c): c for c in KEY_COLUMNS}
+    for j, h in enumerate(head, start=1):
+        name = by_label[h]
+        cell = ws.cell(2, j)
+        if name in BY_OUTPUT and BY_OUTPUT[name].decimals is not None and cell.value is not None:
+            places = BY_OUTPUT[name].decimals
+            assert cell.number_format == ("0" if places == 0 else "0." + "0" * places), h
+    geometry = [ws.cell(r, head.index("Geometry") + 1).value for r in range(2, ws.max_row + 1)]
+    assert "concentric hypertrophy" in geometry and not any(
+        isinstance(g, str) and "_" in g for g in geometry
+    )
+    assert ws.cell(2, head.index("Date") + 1).is_date
+    assert ws.max_row == 301  # every study, in order
+
+
+def test_our_sheets_print_landscape_one_page_wide_with_headers(written):
+    wb = openpyxl.load_workbook(written)
+    for name in OURS:
+        ws = wb[name]
+        assert ws.page_setup.orientation == "landscape", name
+        assert ws.sheet_properties.pageSetUpPr.fitToPage, name
+        assert (ws.page_setup.fitToWidth, ws.page_setup.fitToHeight) == (1, 0), name
+        assert ws.print_title_rows == "$1:$1", name
+    user = openpyxl.load_workbook(SAMPLE)
+    for name in user.sheetnames:  # the user's sheets as they were
+        assert wb[name].page_setup.orientation == user[name].page_setup.orientation
+        assert wb[name].print_title_rows == user[name].print_title_rows
+
+
+def test_sample_workbooks_show_their_dates():
+    for name in ("fernhill_echo_lab.xlsx", "fernhill_followup.xlsx"):
+        ws = openpyxl.load_workbook(sample_dir() / name).worksheets[0]
+        for cell in ws[2]:
+            if cell.is_date:
+                assert cell.number_format == "yyyy-mm-dd", name
+                width = ws.column_dimensions[cell.column_letter].width
+                assert width and width >= 11, (name, cell.column_letter, width)  # 10 characters
+
+
+SOFFICE = shutil.which("soffice") or shutil.which("libreoffice")
+
+
+@pytest.mark.skipif(SOFFICE is None, reason="LibreOffice is not installed (no page count)")
+def test_key_measures_print_on_few_pages(written, tmp_path):
+    """Printed by LibreOffice, the 300-study key-measures sheet fits on a handful of pages (the
+    results sheet of every column printed on 178 before it fitted the width)."""
+    wb = openpyxl.load_workbook(written)
+    for name in wb.sheetnames:
+        if name != "wallstress key measures":
+            del wb[name]
+    one = tmp_path / "key.xlsx"
+    wb.save(one)
+    subprocess.run(
+        [SOFFICE, "--headless", "--convert-to", "pdf", "--outdir", str(tmp_path), str(one)],
+        check=True,
+        capture_output=True,
+        timeout=180,
+    )
+    pdf = (tmp_path / "key.pdf").read_bytes()
+    pages = pdf.count(b"/Type /Page") - pdf.count(b"/Type /Pages")
+    assert 1 <= pages <= 12, pages
