@@ -284,7 +284,12 @@ def test_xlsx_new_workbook_layout(tmp_path):
     out = tmp_path / "r.xlsx"
     write_results(a, out)
     wb = openpyxl.load_workbook(out)
-    assert wb.sheetnames == ["wallstress results", "wallstress findings", "wallstress methods"]
+    assert wb.sheetnames == [
+        "wallstress results",
+        "wallstress key measures",
+        "wallstress findings",
+        "wallstress methods",
+    ]
     ws = wb["wallstress results"]
     headers = [c.value for c in ws[1]]
     # the user's headers unchanged, ours with units and findable by canonical name
@@ -395,7 +400,7 @@ def test_xlsx_copy_keeps_user_workbook(tmp_path):
     assert safety.sha256_file(src) == digest  # the input is never changed
     wb = openpyxl.load_workbook(out)
     assert wb.sheetnames == [
-        "Studies", "Notes", "wallstress results", "wallstress findings", "wallstress methods",
+        "Studies", "Notes", "wallstress results", "wallstress key measures", "wallstress findings", "wallstress methods",
     ]  # fmt: skip
     ws = wb["Studies"]
     assert ws["D2"].value == "=C2*2" and ws["D2"].data_type == "f"
@@ -448,7 +453,12 @@ def test_xlsx_copy_keeps_parts_a_spreadsheet_library_would_drop(tmp_path, part, 
     with zipfile.ZipFile(out) as z:
         assert z.read(part) == data
     wb = openpyxl.load_workbook(out)
-    assert wb.sheetnames[-3:] == ["wallstress results", "wallstress findings", "wallstress methods"]
+    assert wb.sheetnames[-4:] == [
+        "wallstress results",
+        "wallstress key measures",
+        "wallstress findings",
+        "wallstress methods",
+    ]
     assert safety.sha256_file(src) == digest
 
 
@@ -461,7 +471,12 @@ def test_xlsx_lossy_workbook_gets_separate_file(tmp_path, part, data, label):
     assert report == [out]
     assert any(label in n and "not copied" in n for n in report.notes)
     wb = openpyxl.load_workbook(out)
-    assert wb.sheetnames == ["wallstress results", "wallstress findings", "wallstress methods"]
+    assert wb.sheetnames == [
+        "wallstress results",
+        "wallstress key measures",
+        "wallstress findings",
+        "wallstress methods",
+    ]
     warnings = [
         r[1] for r in wb["wallstress methods"].iter_rows(values_only=True) if r[0] == "warning"
     ]
