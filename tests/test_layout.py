@@ -36,6 +36,8 @@ RANK = {
     "report": 5,
     "jobs": 6,
     "chunked": 6,
+    "follow_up": 6,
+    "cohort": 4,
     "cli": 7,
     "web": 7,
 }

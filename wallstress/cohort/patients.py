@@ -1,0 +1,128 @@
+"""Which exported identifiers are one patient: proposals, never merges, and the clinic's map.
+
+Two identifiers are *proposed* as one patient when they differ only in form (case, spaces, dashes,
+dots, underscores, leading zeros of a number: ``HT0001``, ``ht-0001``, ``HT 1``), or when their
+studies never overlap in time, come from different exports, and their sex, height (within 3 cm)
+and age (birth year within 1 year) agree. A proposal is a line of a suggested map: a
+match by form fills ``patient_id``; a match by person only names the ``candidate`` and leaves
+``patient_id`` blank (two people of the same sex, height and age are not rare), for the clinic to
+fill where it agrees. Nothing is merged until the clinic's map (``exported_id,patient_id``) says so.
+"""
+
+from __future__ import annotations
+
+import re
+
+import numpy as np
+import pandas as pd
+
+from wallstress.errors import InputError
+
+MAP_COLUMNS = ("exported_id", "patient_id", "reason")  # a proposal adds "candidate"
+HEIGHT_TOLERANCE_CM = 3.0  # common practice, no source
+BIRTH_YEAR_TOLERANCE = 1.0  # common practice, no source
+
+
+def id_form(text: str) -> str:
+    """An identifier with its form taken away: upper case, no separators, no leading zeros."""
+    t = re.sub(r"[\s\-_./]+", "", str(text).upper())
+    return re.sub(r"(?<!\d)0+(?=\d)", "", t)
+
+
+def propose(studies: pd.DataFrame) -> pd.DataFrame:
+    """Proposed matches: ``exported_id``, ``patient_id`` (the proposed patient: the form seen in
+    the newest export), ``reason``. ``studies``: canonical rows with ``patient_id``,
+    ``study_date``, ``source_file`` and, where known, ``sex``, ``height_cm``, ``age_years``."""
+    s = studies.dropna(subset=["patient_id"]).copy()
+    if s.empty:
+        return pd.DataFrame(columns=[*MAP_COLUMNS, "candidate"])
+    s["patient_id"] = s["patient_id"].astype(str)
+    s["_form"] = s["patient_id"].map(id_form)
+    latest = s.groupby("patient_id")["study_date"].max()
+    rows = []
+    for _, group in s.groupby("_form"):
+        ids = sorted(group["patient_id"].unique(), key=lambda i: latest.get(i, pd.NaT))
+        if len(ids) > 1:
+            target = ids[-1]
+            rows += [(i, target, "identifiers differ only in form") for i in ids[:-1]]
+    formed = {r[0] for r in rows} | {r[1] for r in rows}
+    out = pd.DataFrame(rows, columns=list(MAP_COLUMNS))
+    out["candidate"] = out["patient_id"]
+    weak = pd.DataFrame(_by_person(s[~s["patient_id"].isin(formed)]), columns=list(MAP_COLUMNS))
+    # a person-like match is only a candidate: its patient_id is left blank for the clinic to fill
+    weak["candidate"], weak["patient_id"] = weak["patient_id"], ""
+    return pd.concat([out, weak], ignore_index=True).drop_duplicates("exported_id")
+
+
+def _by_person(s: pd.DataFrame) -> list[tuple[str, str, str]]:
+    """Identifiers of different exports whose studies do not overlap in time and whose sex,
+    height and birth year agree: one proposal when the match is unique both ways."""
+    if not {"sex", "height_cm", "age_years", "study_date", "source_file"} <= set(s.columns):
+        return []
+    d = (
+        s.assign(
+            birth=s["study_date"].dt.year - s["age_years"],
+        )
+        .groupby(["_form"])
+        .agg(
+            pid=("patient_id", "last"),
+            sex=("sex", lambda x: x.dropna().iloc[0] if x.notna().any() else None),
+            height=("height_cm", "median"),
+            birth=("birth", "median"),
+            first=("study_date", "min"),
+            last=("study_date", "max"),
+            files=("source_file", lambda x: frozenset(x)),
+        )
+    )
+    d = d.dropna(subset=["sex", "height", "birth", "first", "last"])
+    if len(d) < 2 or len(d) > 20_000:  # pairs of a very large clinic: form-based proposals only
+        return []
+    a = d.reset_index(drop=True)
+    sex = a["sex"].astype(str).to_numpy()
+    h, b = a["height"].to_numpy(float), a["birth"].to_numpy(float)
+    first, last = a["first"].to_numpy(), a["last"].to_numpy()
+    ok = (
+        (sex[:, None] == sex[None, :])
+        & (np.abs(h[:, None] - h[None, :]) <= HEIGHT_TOLERANCE_CM)
+        & (np.abs(b[:, None] - b[None, :]) <= BIRTH_YEAR_TOLERANCE)
+        & (last[:, None] < first[None, :])  # i ends before j begins
+    )
+    files = a["files"].tolist()
+    for i, j in zip(*np.nonzero(ok), strict=True):
+        if files[i] & files[j]:
+            ok[i, j] = False
+    out = []
+    for i, j in zip(*np.nonzero(ok), strict=True):
+        if ok[i].sum() == 1 and ok[:, j].sum() == 1:
+            out.append(
+                (
+                    str(a["pid"].iloc[i]),
+                    str(a["pid"].iloc[j]),
+                    "same sex, height and birth year; studies before and after a change of export",
+                )
+            )
+    return out
+
+
+def read_map(path) -> dict[str, str]:
+    """A clinic's map (CSV ``exported_id,patient_id[,reason]``): exported id -> patient."""
+    try:
+        m = pd.read_csv(path, dtype=str, keep_default_na=False)
+    except (OSError, ValueError) as exc:
+        raise InputError(f"{path}: cannot read the patient map ({exc})") from exc
+    missing = {"exported_id", "patient_id"} - set(m.columns)
+    if missing:
+        raise InputError(
+            f"{path}: the patient map needs the columns exported_id,patient_id (missing "
+            f"{', '.join(sorted(missing))}); 'wallstress cohort status STORE --map-out FILE' writes one"
+        )
+    m = m[(m["exported_id"].str.strip() != "") & (m["patient_id"].str.strip() != "")]
+    return dict(zip(m["exported_id"].str.strip(), m["patient_id"].str.strip(), strict=True))
+
+
+def apply_map(patient_id: pd.Series, mapping: dict[str, str]) -> pd.Series:
+    """Patient ids with the clinic's decisions applied (ids not in the map unchanged)."""
+    if not mapping:
+        return patient_id
+    text = patient_id.astype("string").astype(object).where(patient_id.notna())
+    return text.map(lambda v: mapping.get(v, v) if isinstance(v, str) else v)
