@@ -39,6 +39,8 @@ RANK = {
     "follow_up": 6,
     "cohort": 4,
     "cli": 7,
+    "cli_cohort": 7,
+    "cli_common": 7,
     "web": 7,
 }
 SHARED = {"errors", "options", "findings", "progress", "bundled", "__init__"}

@@ -15,7 +15,7 @@ from wallstress.jobs import JobResult
 from wallstress.options import Options
 from wallstress.schema.fields import BY_NAME
 from wallstress.write.results import planned_outputs, sheet_keys, write_sheets
-from wallstress.write.safety import check_outputs, protected_inputs, same_file
+from wallstress.write.safety import atomic_path, check_outputs, protected_inputs, same_file
 
 _CANONICAL = set(BY_NAME)
 
@@ -104,6 +104,33 @@ def cohort_status(store) -> dict:
     finally:
         con.close()
     return out
+
+
+def cohort_export(store, folder) -> list[Path]:
+    """Each table of the store as ``folder/TABLE.parquet`` (studies with provenance, imports,
+    findings, conflicts, the patient map) for the dask path or another tool."""
+    from wallstress.cohort.store import open_store
+
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise OutputError(f"{folder} is a file; give a folder for the parquet files")
+    folder.mkdir(parents=True, exist_ok=True)
+    con = open_store(store, read_only=True)
+    written = []
+    try:
+        for table in ("studies", "imports", "study_findings", "conflicts", "patient_map"):
+            target = folder / f"{table}.parquet"
+            check_outputs([target], [Path(store)])
+            with atomic_path(target) as tmp:  # DuckDB writes it, in pieces, without pandas
+                con.execute(f"COPY (SELECT * FROM {table}) TO '{_sql_text(tmp)}' (FORMAT parquet)")
+            written.append(target)
+    finally:
+        con.close()
+    return written
+
+
+def _sql_text(path) -> str:
+    return str(path).replace("'", "''")
 
 
 @dataclass
