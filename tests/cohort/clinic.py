@@ -6,7 +6,7 @@ HT-0001), every header changed, LV dimensions went from mm (stated in the header
 stated: the unit is detected from the values), dates from day-first text to ISO dates, blood
 pressure from two columns to one ("128/82"). The 2019 export repeats three studies of late 2018,
 one with a corrected septum (a conflict). Each patient follows an invented course of LV mass:
-regressing (walls thinning 0.045 cm a year), stable, or progressing (thickening 0.045 cm a year),
+regressing (walls thinning 0.065 cm a year), stable, or progressing (thickening 0.065 cm a year),
 with measurement noise (SD 0.03 cm per wall).
 
 ``write_exports(folder)`` writes the files and returns the truth: patient -> course.
@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 COURSES = ("regressing", "stable", "progressing")
-WALL_RATE_CM_PER_YEAR = {"regressing": -0.045, "stable": 0.0, "progressing": 0.045}
+WALL_RATE_CM_PER_YEAR = {"regressing": -0.065, "stable": 0.0, "progressing": 0.065}
 EXPECTED_VERDICT = {
     "regressing": "mass_fell_beyond_noise",
     "stable": "mass_change_within_noise",

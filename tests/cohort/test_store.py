@@ -2,8 +2,8 @@
 merge without the clinic's map), unit switches, schema migration, a locked store; and the invented
 clinic (tests/cohort/clinic.py) tracked from its files and from the store.
 
-The expected verdicts are the invented courses themselves (walls thinning or thickening 0.045 cm a
-year over 4-6 years: 35-60 g of LV mass by Devereux's formula, beyond the 35 g least significant
+The expected verdicts are the invented courses themselves (walls thinning or thickening 0.065 cm a
+year over 4-6 years: 45-90 g of LV mass by Devereux's formula, beyond the 35 g least significant
 change of Palmieri V et al., J Am Coll Cardiol 1999;34:1625).
 """
 

@@ -312,6 +312,7 @@ OUTPUTS: tuple[Output, ...] = (
         inputs=("sbp_mmhg",),
         option="es_pressure",
         decimals=0,
+        tracked="es_pressure",
         methods=_methods(
             cuff_sbp=Method("mean cuff systolic pressure", "common practice, no source"),
             scaled_sbp=Method(

@@ -1,7 +1,9 @@
 """The visits and patients tables of follow-up: change from baseline and previous visit, slopes, verdicts.
 
-A change in LV mass is real when its size reaches the least significant change (LSC); each patient
-gets a mass verdict and a geometry verdict, as codes and in plain words.
+A change in LV mass is real when its size reaches the least significant change (LSC); with three
+or more masses the fitted trend must reach it too, its 95 % CI excluding zero. Each patient gets a
+mass verdict and a geometry verdict, as codes and in plain words; blood pressure, end-systolic
+pressure and wall stress are followed beside them (first, last, slope with its CI).
 
 References
 ----------
@@ -15,12 +17,22 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from wallstress.schema.outputs import TRACKED_MEASURES
 from wallstress.schema.vocabulary import CONCENTRIC_REMODELLING, HYPERTROPHY, NORMAL, OUT
 from wallstress.tracking.statistics import grouped_linear_fit
-from wallstress.tracking.visits import _NS_PER_DAY, DAYS_PER_YEAR
+from wallstress.tracking.visits import _NS_PER_DAY, DAYS_PER_YEAR, FOLLOWED
 
-SLOPE_MEASURES: tuple[str, ...] = (OUT.lv_mass_g, OUT.lvmi_bsa_g_m2, OUT.lvmi_h27_g_m2_7, OUT.rwt)
+SLOPE_MEASURES: tuple[str, ...] = (
+    OUT.lv_mass_g,
+    OUT.lvmi_bsa_g_m2,
+    OUT.lvmi_h27_g_m2_7,
+    OUT.rwt,
+    # afterload over time: the pressures and the wall stress they give
+    "sbp_mmhg",
+    "dbp_mmhg",
+    OUT.es_pressure_mmhg,
+    OUT.mess_kdyn_cm2,
+    OUT.cess_kdyn_cm2,
+)
 
 
 MASS_VERDICT_TEXT: dict[str, str] = {
@@ -29,6 +41,10 @@ MASS_VERDICT_TEXT: dict[str, str] = {
     "mass_fell_beyond_noise": "LV mass fell beyond the measurement's reproducibility",
     "mass_rose_beyond_noise": "LV mass rose beyond the measurement's reproducibility",
     "mass_change_within_noise": "change in LV mass within measurement noise",
+    "mass_change_uncertain": (
+        "first and last LV mass differ beyond reproducibility, but the trend over all visits "
+        "does not confirm it"
+    ),
 }
 
 
@@ -91,7 +107,7 @@ def _visits(v: pd.DataFrame, gid, starts, ids, lsc: float) -> pd.DataFrame:
         OUT.geometry: v[OUT.geometry].to_numpy(),
     }
     keys = pd.Series(gid)
-    for col, stem, unit in TRACKED_MEASURES:
+    for col, stem, unit in FOLLOWED:
         y = v[col].reset_index(drop=True)
         grouped = y.groupby(keys, sort=False)
         base = grouped.transform("first")  # earliest available value
@@ -140,7 +156,7 @@ def _patients(visits, gid, starts, ends, ids, n_groups, n_studies, lsc) -> pd.Da
     n_sex = visits["sex"].groupby(keys, sort=False).nunique().to_numpy()
     out["sex"] = np.where(n_sex > 1, "", pd.Series(sex_last).fillna("").to_numpy())
 
-    for col, stem, unit in TRACKED_MEASURES:
+    for col, stem, unit in FOLLOWED:
         first, last, _ = _first_last(visits[col].reset_index(drop=True), keys)
         out[_name(stem, "first", unit)] = first
         out[_name(stem, "last", unit)] = last
@@ -152,7 +168,7 @@ def _patients(visits, gid, starts, ends, ids, n_groups, n_studies, lsc) -> pd.Da
     out["lv_mass_real_change"] = _real(mass_change, lsc)
 
     for col in SLOPE_MEASURES:
-        stem, unit = next((st, u) for c, st, u in TRACKED_MEASURES if c == col)
+        stem, unit = next((st, u) for c, st, u in FOLLOWED if c == col)
         per = f"{unit}_per_year" if unit else "per_year"
         fit = grouped_linear_fit(gid, years, visits[col].to_numpy(), n_groups)
         out[f"{stem}_slope_{per}"] = fit["slope"].to_numpy()
@@ -174,9 +190,33 @@ def _patients(visits, gid, starts, ends, ids, n_groups, n_studies, lsc) -> pd.Da
     out["n_visits_with_geometry"] = n_geo
 
     single = out["n_visits"] == 1
+    # With three or more masses the trend over every visit is weighed, not only the first and last
+    # study: the fitted change over the follow-up (slope x span) must reach the LSC and the
+    # slope's 95 % CI must exclude zero. A first-to-last change beyond the LSC that the trend does
+    # not bear out is "uncertain" (one noisy study can make it).
+    slope = out["lv_mass_slope_g_per_year"]
+    low, high = out["lv_mass_slope_ci_low_g_per_year"], out["lv_mass_slope_ci_high_g_per_year"]
+    with np.errstate(invalid="ignore"):
+        fitted = slope * out["span_years"]
+        trend_fell = (n_mass >= 3) & (fitted <= -lsc) & (high < 0)
+        trend_rose = (n_mass >= 3) & (fitted >= lsc) & (low > 0)
+        pair_fell, pair_rose = mass_change <= -lsc, mass_change >= lsc
+    two = n_mass == 2
     mass_code = np.select(
-        [single, n_mass < 2, mass_change <= -lsc, mass_change >= lsc],
-        ["single_study", "mass_not_assessable", "mass_fell_beyond_noise", "mass_rose_beyond_noise"],
+        [
+            single,
+            n_mass < 2,
+            (two & pair_fell) | trend_fell,
+            (two & pair_rose) | trend_rose,
+            ~two & (pair_fell | pair_rose),
+        ],
+        [
+            "single_study",
+            "mass_not_assessable",
+            "mass_fell_beyond_noise",
+            "mass_rose_beyond_noise",
+            "mass_change_uncertain",
+        ],
         "mass_change_within_noise",
     )
     first_h = np.isin(g_first, HYPERTROPHY)

@@ -22,6 +22,12 @@ SAME_DAY_RULES: tuple[str, ...] = ("mean", "last")
 
 
 BODY_COLUMNS: tuple[str, ...] = ("height_cm", "weight_kg", "age_years")
+# followed like the tracked measures: the cuff pressures beside the wall stress they load
+FOLLOWED: tuple[tuple[str, str, str], ...] = (
+    *TRACKED_MEASURES,
+    ("sbp_mmhg", "sbp", "mmhg"),
+    ("dbp_mmhg", "dbp", "mmhg"),
+)
 
 
 DAYS_PER_YEAR = 365.25  # Julian year
@@ -107,7 +113,7 @@ def _prepare(frame: pd.DataFrame) -> tuple[pd.DataFrame, list[pd.DataFrame], dic
         out["sex"] = sex.where(sex.isin(["F", "M"]))
     else:
         out["sex"] = pd.Series(pd.NA, index=out.index, dtype="string")
-    for col in (*(m for m, _, _ in TRACKED_MEASURES), *BODY_COLUMNS):
+    for col in (*(m for m, _, _ in FOLLOWED), *BODY_COLUMNS):
         if col in frame.columns:
             out[col] = pd.to_numeric(frame[col].reset_index(drop=True), errors="coerce").astype(
                 float
@@ -198,7 +204,7 @@ def _collapse_same_day(s: pd.DataFrame, rule: str) -> tuple[pd.DataFrame, list[p
 
     # rule == "mean": numeric measures averaged; geometry kept only when every study of the day agrees
     g = dup.groupby(dup_visit, sort=False)
-    num_cols = [m for m, _, _ in TRACKED_MEASURES] + list(BODY_COLUMNS)
+    num_cols = [m for m, _, _ in FOLLOWED] + list(BODY_COLUMNS)
     merged = dup[is_last].copy()
     merged[num_cols] = g[num_cols].mean().to_numpy()
     sex = g["sex"].last()  # last non-missing value
