@@ -219,6 +219,26 @@ def test_match_header():
     assert match_header("favourite colour") == (None, "")
 
 
+@pytest.mark.parametrize(
+    "header, field",
+    [
+        ("Patient No", "patient_id"),
+        ("Patient No.", "patient_id"),
+        ("Patient #", "patient_id"),
+        ("Hospital number", "patient_id"),
+        ("MRN", "patient_id"),
+        ("Exam No", "study_id"),
+        ("Exam nr", "study_id"),
+        ("Study number", "study_id"),
+        ("Accession", "study_id"),
+        ("Exam date", "study_date"),
+    ],
+)
+def test_identifier_headers_of_real_exports(header, field):
+    """How echo and hospital systems name patient and study numbers (common practice, no source)."""
+    assert match_header(header)[0] == field
+
+
 def test_columns_option_and_unknown_field():
     """The lab's own map is used; an unknown target lists the valid names."""
     raw = pd.DataFrame({"Septum d.": [1.0], "Cavity": [5.0]})
