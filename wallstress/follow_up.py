@@ -15,7 +15,13 @@ from wallstress.jobs import JobResult
 from wallstress.options import Options
 from wallstress.schema.fields import BY_NAME
 from wallstress.write.results import planned_outputs, sheet_keys, write_sheets
-from wallstress.write.safety import atomic_path, check_outputs, protected_inputs, same_file
+from wallstress.write.safety import (
+    atomic_path,
+    check_outputs,
+    protected_inputs,
+    same_file,
+    sha256_file,
+)
 
 _CANONICAL = set(BY_NAME)
 
@@ -36,7 +42,7 @@ def cohort_add(store, paths, options: Options | None = None, *, patient_map=None
     from types import SimpleNamespace
 
     from wallstress.cohort.exports import expand, read_export, unit_changes
-    from wallstress.cohort.imports import add_export, load_studies, save_map
+    from wallstress.cohort.imports import ImportResult, add_export, load_studies, save_map
     from wallstress.cohort.patients import propose, read_map
     from wallstress.cohort.store import open_store
     from wallstress.errors import describe
@@ -50,12 +56,26 @@ def cohort_add(store, paths, options: Options | None = None, *, patient_map=None
         )
     mapping = read_map(patient_map) if patient_map else {}
     result, exports = CohortAdd(), []
+    known = _imported_hashes(store)
     with protected_inputs(*files):
         for f in files:
             try:
+                digest = sha256_file(f)
+                if digest in known:  # nothing to read: the store has it
+                    result.imports.append(
+                        ImportResult(
+                            f.name,
+                            "already in the store",
+                            notes=[
+                                f"{f.name}: already imported on {known[digest]}; nothing changed"
+                            ],
+                        )
+                    )
+                    continue
                 exports.append(read_export(f, options))
             except Exception as exc:  # one file's problem does not stop the others
                 result.failed.append((f.name, describe(exc)[0]))
+        result.notes += [n for r in result.imports for n in r.notes]
         if not exports and not mapping:
             return result
         con = open_store(store, create=True)
@@ -82,6 +102,21 @@ def cohort_add(store, paths, options: Options | None = None, *, patient_map=None
         finally:
             con.close()
     return result
+
+
+def _imported_hashes(store: Path) -> dict[str, str]:
+    """SHA-256 -> when, of the files a store already holds (empty for a new store)."""
+    from wallstress.cohort.store import open_store
+
+    if not store.exists():
+        return {}
+    con = open_store(store, read_only=True)
+    try:
+        return dict(
+            con.execute("SELECT sha256, min(imported_utc) FROM imports GROUP BY sha256").fetchall()
+        )
+    finally:
+        con.close()
 
 
 def _open_proposals(con, studies: pd.DataFrame, propose) -> pd.DataFrame:

@@ -29,6 +29,12 @@ def id_form(text: str) -> str:
     return re.sub(r"(?<!\d)0+(?=\d)", "", t)
 
 
+def id_forms(ids: pd.Series) -> pd.Series:
+    """:func:`id_form` of a column of identifiers, with vectorised text methods."""
+    t = ids.astype(str).str.upper().str.replace(r"[\s\-_./]+", "", regex=True)
+    return t.str.replace(r"(^|\D)0+(\d)", r"\1\2", regex=True)
+
+
 def propose(studies: pd.DataFrame) -> pd.DataFrame:
     """Proposed matches: ``exported_id``, ``patient_id`` (the proposed patient: the form seen in
     the newest export), ``reason``. ``studies``: canonical rows with ``patient_id``,
@@ -37,14 +43,17 @@ def propose(studies: pd.DataFrame) -> pd.DataFrame:
     if s.empty:
         return pd.DataFrame(columns=[*MAP_COLUMNS, "candidate"])
     s["patient_id"] = s["patient_id"].astype(str)
-    s["_form"] = s["patient_id"].map(id_form)
+    ids = pd.Series(s["patient_id"].unique())
+    forms = dict(zip(ids, id_forms(ids), strict=True))  # each distinct id once, vectorised
+    s["_form"] = s["patient_id"].map(forms)
     latest = s.groupby("patient_id")["study_date"].max()
+    per_form = s.drop_duplicates("patient_id")
+    shared = per_form["_form"].duplicated(keep=False)
     rows = []
-    for _, group in s.groupby("_form"):
-        ids = sorted(group["patient_id"].unique(), key=lambda i: latest.get(i, pd.NaT))
-        if len(ids) > 1:
-            target = ids[-1]
-            rows += [(i, target, "identifiers differ only in form") for i in ids[:-1]]
+    for _, group in per_form[shared].groupby("_form"):  # only forms held by two or more ids
+        ids_here = sorted(group["patient_id"], key=lambda i: latest.get(i, pd.NaT))
+        target = ids_here[-1]
+        rows += [(i, target, "identifiers differ only in form") for i in ids_here[:-1]]
     formed = {r[0] for r in rows} | {r[1] for r in rows}
     out = pd.DataFrame(rows, columns=list(MAP_COLUMNS))
     out["candidate"] = out["patient_id"]
@@ -66,42 +75,50 @@ def _by_person(s: pd.DataFrame) -> list[tuple[str, str, str]]:
         .groupby(["_form"])
         .agg(
             pid=("patient_id", "last"),
-            sex=("sex", lambda x: x.dropna().iloc[0] if x.notna().any() else None),
+            sex=("sex", "first"),  # the first given
             height=("height_cm", "median"),
             birth=("birth", "median"),
             first=("study_date", "min"),
             last=("study_date", "max"),
-            files=("source_file", lambda x: frozenset(x)),
+            first_file=("source_file", "first"),
+            last_file=("source_file", "last"),
         )
     )
-    d = d.dropna(subset=["sex", "height", "birth", "first", "last"])
-    if len(d) < 2 or len(d) > 20_000:  # pairs of a very large clinic: form-based proposals only
+    d = d.dropna(subset=["sex", "height", "birth", "first", "last"]).reset_index(drop=True)
+    if len(d) < 2:
         return []
-    a = d.reset_index(drop=True)
-    sex = a["sex"].astype(str).to_numpy()
-    h, b = a["height"].to_numpy(float), a["birth"].to_numpy(float)
-    first, last = a["first"].to_numpy(), a["last"].to_numpy()
-    ok = (
-        (sex[:, None] == sex[None, :])
-        & (np.abs(h[:, None] - h[None, :]) <= HEIGHT_TOLERANCE_CM)
-        & (np.abs(b[:, None] - b[None, :]) <= BIRTH_YEAR_TOLERANCE)
-        & (last[:, None] < first[None, :])  # i ends before j begins
-    )
-    files = a["files"].tolist()
-    for i, j in zip(*np.nonzero(ok), strict=True):
-        if files[i] & files[j]:
-            ok[i, j] = False
-    out = []
-    for i, j in zip(*np.nonzero(ok), strict=True):
-        if ok[i].sum() == 1 and ok[:, j].sum() == 1:
-            out.append(
-                (
-                    str(a["pid"].iloc[i]),
-                    str(a["pid"].iloc[j]),
-                    "same sex, height and birth year; studies before and after a change of export",
-                )
-            )
-    return out
+    # compared within buckets of one sex and birth year (and the next year): never all pairs
+    d["_b"] = np.floor(d["birth"]).astype(int)
+    buckets = {k: g.index.to_numpy() for k, g in d.groupby(["sex", "_b"])}
+    h, b = d["height"].to_numpy(float), d["birth"].to_numpy(float)
+    first, last = d["first"].to_numpy(), d["last"].to_numpy()
+    first_file, last_file = d["first_file"].to_numpy(), d["last_file"].to_numpy()
+    pairs = []
+    for (sex, year), here in buckets.items():
+        near = np.concatenate(
+            [buckets.get((sex, y), np.zeros(0, dtype=int)) for y in (year - 1, year, year + 1)]
+        )
+        ok = (
+            (np.abs(h[here, None] - h[None, near]) <= HEIGHT_TOLERANCE_CM)
+            & (np.abs(b[here, None] - b[None, near]) <= BIRTH_YEAR_TOLERANCE)
+            & (last[here, None] < first[None, near])  # i ends before j begins
+        )
+        for i, j in zip(*np.nonzero(ok), strict=True):
+            if last_file[here[i]] != first_file[near[j]]:  # from different exports
+                pairs.append((here[i], near[j]))
+    if not pairs:
+        return []
+    left = pd.Series([i for i, _ in pairs]).value_counts()
+    right = pd.Series([j for _, j in pairs]).value_counts()
+    return [
+        (
+            str(d["pid"].iloc[i]),
+            str(d["pid"].iloc[j]),
+            "same sex, height and birth year; studies before and after a change of export",
+        )
+        for i, j in pairs
+        if left[i] == 1 and right[j] == 1  # unique both ways
+    ]
 
 
 def read_map(path) -> dict[str, str]:
