@@ -92,7 +92,8 @@ def _by_person(s: pd.DataFrame) -> list[tuple[str, str, str]]:
     buckets = {k: g.index.to_numpy() for k, g in d.groupby(["sex", "_b"])}
     h, b = d["height"].to_numpy(float), d["birth"].to_numpy(float)
     first, last = d["first"].to_numpy(), d["last"].to_numpy()
-    first_file, last_file = d["first_file"].to_numpy(), d["last_file"].to_numpy()
+    codes, _ = pd.factorize(pd.concat([d["first_file"], d["last_file"]]))
+    first_file, last_file = codes[: len(d)], codes[len(d) :]
     pairs = []
     for (sex, year), here in buckets.items():
         near = np.concatenate(
@@ -102,10 +103,10 @@ def _by_person(s: pd.DataFrame) -> list[tuple[str, str, str]]:
             (np.abs(h[here, None] - h[None, near]) <= HEIGHT_TOLERANCE_CM)
             & (np.abs(b[here, None] - b[None, near]) <= BIRTH_YEAR_TOLERANCE)
             & (last[here, None] < first[None, near])  # i ends before j begins
+            & (last_file[here, None] != first_file[None, near])  # in different exports
         )
-        for i, j in zip(*np.nonzero(ok), strict=True):
-            if last_file[here[i]] != first_file[near[j]]:  # from different exports
-                pairs.append((here[i], near[j]))
+        i, j = np.nonzero(ok)
+        pairs += list(zip(here[i].tolist(), near[j].tolist(), strict=True))
     if not pairs:
         return []
     left = pd.Series([i for i, _ in pairs]).value_counts()
