@@ -5,6 +5,7 @@ from __future__ import annotations
 import html
 import re
 
+import numpy as np
 import pandas as pd
 
 from wallstress.figures.common import GEOMETRY_CLASSES, GEOMETRY_LABELS
@@ -46,6 +47,10 @@ PATIENT_COLUMNS: tuple[str, ...] = (
     "lv_mass_change_g",
     "lv_mass_real_change",
     "lv_mass_slope_g_per_year",
+    "sbp_first_mmhg",
+    "sbp_last_mmhg",
+    "mess_first_kdyn_cm2",
+    "mess_last_kdyn_cm2",
     "geometry_first",
     "geometry_last",
     "verdict",
@@ -108,7 +113,7 @@ def _cohort_section(tracking, reference_set, figs: _Figures) -> str:
             parts.append(_table(t, index=not isinstance(t.index, pd.RangeIndex)))
     if patients is not None and len(patients):
         cols = [c for c in PATIENT_COLUMNS if c in patients.columns] or list(patients.columns)
-        parts.append("<h3>Patients</h3>" + _table(patients[cols]))
+        parts.append("<h3>Every patient, one line each</h3>" + _table(patients[cols]))
     parts.append("</section>")
     return "".join(parts)
 
@@ -135,6 +140,11 @@ def _prevalence_wide(t):
     return wide.reset_index()
 
 
+# verdicts that make a patient's page worth reading first (tracking's codes)
+_REAL_CHANGE = ("mass_fell_beyond_noise", "mass_rose_beyond_noise", "mass_change_uncertain")
+_NO_CLASS_CHANGE = ("single_study", "geometry_not_assessable", "geometry_unchanged")
+
+
 def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> str:
     visits = _tracking_table(tracking, "visits")
     patients = _tracking_table(tracking, "patients")
@@ -142,8 +152,17 @@ def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> s
         return ""
     ids = visits["patient_id"].astype("string").fillna("")
     if patients is not None and "patient_id" in patients.columns:
-        order = list(dict.fromkeys(patients["patient_id"].astype("string").fillna("").tolist()))
-        order += [p for p in dict.fromkeys(ids.tolist()) if p not in set(order)]
+        # pages for patients followed (two visits or more), those whose change is real first
+        followed = patients
+        if "n_visits" in patients.columns:
+            followed = patients[pd.to_numeric(patients["n_visits"], errors="coerce") >= 2]
+        moved = np.zeros(len(followed), dtype=bool)
+        if "mass_verdict" in followed.columns:
+            moved |= followed["mass_verdict"].astype(str).isin(_REAL_CHANGE).to_numpy()
+        if "geometry_verdict" in followed.columns:
+            moved |= ~followed["geometry_verdict"].astype(str).isin(_NO_CLASS_CHANGE).to_numpy()
+        followed = followed.iloc[np.argsort(~moved, kind="stable")]
+        order = list(dict.fromkeys(followed["patient_id"].astype("string").fillna("").tolist()))
         info = patients.assign(_pid=patients["patient_id"].astype("string").fillna(""))
         info = info.drop_duplicates("_pid").set_index("_pid")
     else:
@@ -151,7 +170,7 @@ def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> s
         info = None
     lsc, lsc_source, lsc_verified = _lsc_g(reference_set)
     groups = dict(tuple(visits.groupby(ids.to_numpy(), sort=False)))
-    parts = ['<section id="patients"><h2>Patients</h2>']
+    parts = ['<section id="patients"><h2>Patient pages</h2>']
     total = len(order)
     if total > max_pages:
         parts.append(
@@ -180,7 +199,7 @@ def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> s
                     COLUMN_LABELS.get(c, c),
                     _e(GEOMETRY_LABELS.get(row[c], row[c]) if OUT.geometry in c else row[c]),
                 )
-                for c in (*PATIENT_COLUMNS, "mass_verdict", "geometry_verdict")
+                for c in PATIENT_COLUMNS
                 if c in row.index
                 and c not in ("patient_id", "verdict", "verdict_text")
                 and _fmt(row[c])
@@ -196,7 +215,11 @@ def _patient_pages(tracking, reference_set, figs: _Figures, max_pages: int) -> s
                 dpi=96,
             )
         )
-        cols = [c for c in (*VISIT_COLUMNS, *VISIT_EXTRA_COLUMNS) if c in v.columns]
+        cols = [
+            c
+            for c in (*VISIT_COLUMNS, *VISIT_EXTRA_COLUMNS)
+            if c in v.columns and v[c].astype("string").fillna("").str.strip().ne("").any()
+        ]  # no column that is empty for every visit
         if not cols:
             cols = [c for c in v.columns if c not in ("patient_id", "sex")][:14]
         parts.append(_table(v[cols]))

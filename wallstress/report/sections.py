@@ -67,12 +67,16 @@ CUTOFF_MEASURES: tuple[str, ...] = (
 MODELS: tuple[str, ...] = ("reproducibility", "midwall_stress_line", "mass_prediction")
 
 
+def _row_rank(rowwise: pd.DataFrame) -> pd.Series:
+    """Each row's highest severity (note 0, warning 1, error 2), by row, vectorised."""
+    rank = rowwise["severity"].astype(str).map(SEVERITY_RANK).fillna(0).astype(int)
+    return rank.groupby(rowwise["row"].to_numpy()).max()
+
+
 def _summary_section(analysis, frame: pd.DataFrame, findings: pd.DataFrame) -> str:
     n = int(getattr(analysis, "n_rows", len(frame)))
     rowwise = findings[findings["row"] >= 0]
-    sev = rowwise.groupby("row")["severity"].agg(
-        lambda s: max((SEVERITY_RANK.get(x, 0) for x in s), default=0)
-    )
+    sev = _row_rank(rowwise)
     if OUT.flags in frame.columns:
         flagged = int(frame[OUT.flags].astype("string").fillna("").str.strip().ne("").sum())
     else:
@@ -178,23 +182,28 @@ def _flagged_section(frame: pd.DataFrame, findings: pd.DataFrame, max_rows: int)
         }
     )
     parts.append("<h3>Findings by code</h3>" + _table(codes_table, max_rows=max_rows))
-    field = rowwise["field"].astype("string").fillna("")
-    value = rowwise["value"].astype("string").fillna("")
-    label = field.where(field != "", rowwise["column"].astype("string").fillna(""))
-    grouped = (
-        rowwise.assign(_rank=rank, _value=(label + " = " + value).where(value != "", ""))
+    # every row's rank at once; the codes and values are joined only for the rows shown
+    row_rank = _row_rank(rowwise)
+    n_rows_found = len(row_rank)
+    n_err = int((row_rank >= 2).sum())
+    n_notes_only = int((row_rank < 1).sum())
+    listed = row_rank[row_rank >= 1]
+    listed = listed.iloc[np.lexsort((listed.index.to_numpy(), -listed.to_numpy()))]
+    n_listed = len(listed)
+    listed = listed.iloc[:max_rows]
+    some = rowwise[rowwise["row"].isin(listed.index)]
+    field = some["field"].astype("string").fillna("")
+    value = some["value"].astype("string").fillna("")
+    label = field.where(field != "", some["column"].astype("string").fillna(""))
+    joined = (
+        some.assign(_value=(label + " = " + value).where(value != "", ""))
         .groupby("row", sort=True)
         .agg(
-            _rank=("_rank", "max"),
             codes=("code", lambda s: "; ".join(dict.fromkeys(map(str, s)))),
             values=("_value", lambda s: "; ".join(x for x in dict.fromkeys(s) if x)),
         )
     )
-    n_rows_found = len(grouped)
-    n_err = int((grouped["_rank"] >= 2).sum())
-    n_notes_only = int((grouped["_rank"] < 1).sum())
-    grouped = grouped[grouped["_rank"] >= 1]
-    grouped = grouped.iloc[np.lexsort((grouped.index.to_numpy(), -grouped["_rank"].to_numpy()))]
+    grouped = pd.DataFrame({"_rank": listed}).join(joined)
     out = pd.DataFrame({"row": grouped.index.to_numpy() + 1})
     positions = grouped.index.to_numpy()
     valid = positions < len(frame)
@@ -206,7 +215,7 @@ def _flagged_section(frame: pd.DataFrame, findings: pd.DataFrame, max_rows: int)
     out["severity"] = grouped["_rank"].astype(int).map(names).to_numpy()
     out["codes"] = grouped["codes"].to_numpy()
     out["values"] = grouped["values"].to_numpy()
-    n = len(out)
+    n = n_listed
     parts.append(
         f"<h3>Rows with an error or a warning</h3><p>{n_rows_found} row(s) have findings: "
         f"{n_err} with an error, {n - n_err} with a warning, {n_notes_only} with notes only "
