@@ -281,7 +281,9 @@ def report(
     """Pictures and per-patient pages in one HTML file that works offline."""
 
     options = _guard(_options, reference, units, sheet, columns, date_order=date_order)
-    path = _guard(report_file, studies, out, options, figures_dir=figures, inputs=(columns,))
+    path = _guard(
+        report_file, studies, out, options, figures_dir=figures, quiet=quiet, inputs=(columns,)
+    )
     if not quiet:
         typer.echo(f"wrote {path}")
 

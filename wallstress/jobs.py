@@ -199,7 +199,12 @@ def track_file(
 
 
 def report_file(
-    path: str | Path, out: str | Path, options: Options | None = None, *, figures_dir=None
+    path: str | Path,
+    out: str | Path,
+    options: Options | None = None,
+    *,
+    figures_dir=None,
+    quiet: bool = True,
 ) -> Path:
     """One self-contained HTML report; the cohort over time and per-patient pages when the list
     follows patients over time (``tracking.track.is_longitudinal``)."""
@@ -214,12 +219,20 @@ def report_file(
     from wallstress.report.page import write_report
     from wallstress.tracking.track import is_longitudinal, track
 
-    with protected_inputs(Path(path), *reference_files(options)):
+    with (
+        protected_inputs(Path(path), *reference_files(options)),
+        Progress(4, enabled=None if not quiet else False) as bar,
+    ):
         _, analysis = _read_and_analyse(path, options)
+        bar.step(f"read and analysed {analysis.n_rows} rows")
         tracking = None
         if is_longitudinal(analysis.canonical):  # a lab's cross-sectional list: no patient pages
             tracking = track(analysis, options)
-        return write_report(analysis, out, tracking=tracking, figures_dir=figures_dir)
+        bar.step("followed patients" if tracking is not None else "one study per patient")
+        written = write_report(analysis, out, tracking=tracking, figures_dir=figures_dir)
+        bar.step("report drawn and written")
+        bar.step("done")
+        return written
 
 
 def calibrate_file(

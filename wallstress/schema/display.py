@@ -148,6 +148,10 @@ KEY_COLUMNS: tuple[str, ...] = (
 )
 
 
+# columns of our own sheets that are neither fields nor outputs
+_SHEET_LABELS: dict[str, str] = {"check": "Check", "marks": "Marks (legend)"}
+
+
 def label(name: str) -> str:
     """What a clinician reads for a column: ``"LVMI/BSA (g/m2)"`` for ``lvmi_bsa_g_m2``; the name
     itself when neither the output registry nor the field list labels it."""
@@ -157,6 +161,8 @@ def label(name: str) -> str:
         text, unit = out.label, out.unit if out.is_number else ""
     elif name in _FIELD_LABELS:
         text, unit = _FIELD_LABELS[name], BY_NAME[name].unit if name in BY_NAME else ""
+    elif name in _SHEET_LABELS:
+        return _SHEET_LABELS[name]
     else:
         return name
     unit = "" if unit == "ratio" else unit

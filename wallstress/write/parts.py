@@ -46,6 +46,7 @@ class _Part:
     key: str  # "" for the main file
     frame: pd.DataFrame
     unit_columns: str = "all"  # "all", "outputs", "labels" (readable headers) or "none"
+    marks: tuple = ()  # conditional marks of the sheet (xlsx): (range, formula, kind)
 
 
 def _sidecar(out: Path, key: str, suffix: str | None = None) -> Path:

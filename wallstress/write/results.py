@@ -26,13 +26,14 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
 from wallstress import findings as _findings
 from wallstress.errors import OutputError
-from wallstress.schema.display import KEY_COLUMNS
+from wallstress.schema.display import KEY_COLUMNS, label
 from wallstress.schema.vocabulary import OUT, in_words
 from wallstress.write import safety
 from wallstress.write.flat import (
@@ -129,9 +130,8 @@ def write_results(
         table = numbers_as_numbers(table, getattr(source, "numbers", None))
     parts = [_Part(names["results"], "", table, unit_columns="outputs")]
     if in_place or Path(out_path or "").suffix.lower() == ".xlsx":  # a sheet to read and print
-        parts.append(
-            _Part(names["key_measures"], "", key_measures(analysis), unit_columns="labels")
-        )
+        key, marks = with_marks(key_measures(analysis), analysis)
+        parts.append(_Part(names["key_measures"], "", key, unit_columns="labels", marks=marks))
     parts.append(
         _Part(names["findings"], results_keys()[1], _findings_for_writing(analysis.findings))
     )
@@ -161,6 +161,69 @@ def key_measures(analysis) -> pd.DataFrame:
             values = values.astype(object).map(lambda v: in_words(v) if isinstance(v, str) else v)
         cols[name] = values.reset_index(drop=True)
     return pd.DataFrame(cols)
+
+
+def _worst_severity(findings: pd.DataFrame, n_rows: int) -> np.ndarray:
+    """Each row's worst finding: "error", "warning" or "" (notes do not count)."""
+    rank = np.zeros(n_rows, dtype=np.int8)
+    rows = findings["row"].to_numpy(dtype="int64")
+    sev = findings["severity"].astype(str).to_numpy()
+    for level, name in ((1, "warning"), (2, "error")):
+        hit = rows[(sev == name) & (rows >= 0) & (rows < n_rows)]
+        rank[hit] = np.maximum(rank[hit], level)
+    return np.array(["", "warning", "error"], dtype=object)[rank]
+
+
+def with_marks(key: pd.DataFrame, analysis) -> tuple[pd.DataFrame, tuple]:
+    """The key-measures table with its ``check`` column (the row's worst finding) and a legend,
+    and the sheet's conditional marks: rows with an error; LVMI and RWT beyond the limits of the
+    reference set in force (sex-specific where the set is)."""
+    from wallstress.analysis.references import load_set
+    from wallstress.write.xlsx.sheet_xml import col_letters
+
+    key = key.copy()
+    n = len(key)
+    key["check"] = _worst_severity(analysis.findings, n)
+    letter = {c: col_letters(j) for j, c in enumerate(key.columns)}
+    check, last = letter["check"], n + 1
+    marks = [(f"A2:{check}{last}", f'${check}2="error"', "error")]
+    set_name = str((analysis.methods.get("options") or {}).get("reference") or "")
+    try:
+        refset = load_set(set_name) if set_name else None
+    except Exception:  # the run read it already; without it, only the error marks
+        refset = None
+    said = []
+    for measure in (OUT.lvmi_bsa_g_m2, OUT.lvmi_h27_g_m2_7, OUT.rwt):
+        if refset is None or measure not in letter:
+            continue
+        cuts = {sex: refset.cutoff(measure, sex) for sex in ("F", "M")}
+        if any(c is None or c.comparison != ">" for c in cuts.values()):
+            continue
+        c, sex = letter[measure], letter.get("sex")
+        f_cut, m_cut = cuts["F"].value, cuts["M"].value
+        if f_cut == m_cut or sex is None:
+            rule = f"AND(ISNUMBER({c}2),{c}2>{f_cut:g})"
+            said.append(f"{label(measure)} > {f_cut:g}")
+        else:
+            rule = (
+                f'AND(ISNUMBER({c}2),OR(AND(${sex}2="F",{c}2>{f_cut:g}),'
+                f'AND(${sex}2="M",{c}2>{m_cut:g})))'
+            )
+            said.append(f"{label(measure)} > {f_cut:g} (F), > {m_cut:g} (M)")
+        marks.append((f"{c}2:{c}{last}", rule, "limit"))
+    legend = [
+        f"Blue: above the limit of the reference set {set_name} ({'; '.join(said)})"
+        if said
+        else "Blue: (no reference limits could be loaded)",
+        "Orange: the row has an error finding (see Check, Flags and the findings sheet)",
+        "Marks only: the values are as computed; check them against your lab's own limits.",
+    ]
+    shown = (legend + [None] * n)[:n]
+    key["marks"] = pd.Series(shown, dtype=object)
+    marks_col = col_letters(len(letter))
+    if n >= 2:
+        marks += [(f"{marks_col}2", "TRUE", "limit"), (f"{marks_col}3", "TRUE", "error")]
+    return key, tuple(marks)
 
 
 # A number written plainly: the text a spreadsheet shows for the number is the text of the cell

@@ -53,7 +53,7 @@ def test_key_measures_sheet_labels_formats_and_words(written):
     ):
         assert expected in head, expected
     assert not any("_" in h for h in head)  # no machine names
-    by_label = {label(c): c for c in KEY_COLUMNS}
+    by_label = {label(c): c for c in (*KEY_COLUMNS, "check", "marks")}
     for j, h in enumerate(head, start=1):
         name = by_label[h]
         cell = ws.cell(2, j)
@@ -114,3 +114,27 @@ def test_key_measures_print_on_few_pages(written, tmp_path):
     pdf = (tmp_path / "key.pdf").read_bytes()
     pages = pdf.count(b"/Type /Page") - pdf.count(b"/Type /Pages")
     assert 1 <= pages <= 12, pages
+
+
+def test_marks_beyond_limits_and_error_rows_with_a_legend(written):
+    """Conditional marks on the key-measures sheet only: LVMI/BSA above 95 g/m2 (women) and
+    115 g/m2 (men), RWT above 0.42 (Lang RM et al., J Am Soc Echocardiogr 2015;28:1, the default
+    set), rows with an error; two fills a colour-blind reader tells apart, and a legend."""
+    wb = openpyxl.load_workbook(written)
+    ws = wb["wallstress key measures"]
+    head = [c.value for c in ws[1]]
+    col = {h: openpyxl.utils.get_column_letter(j) for j, h in enumerate(head, start=1)}
+    rules = {str(cf.sqref): [r.formula[0] for r in cf.rules] for cf in ws.conditional_formatting}
+    lvmi, rwt, check, sex = col["LVMI/BSA (g/m2)"], col["RWT"], col["Check"], col["Sex"]
+    assert f'${sex}2="F",{lvmi}2>95' in rules[f"{lvmi}2:{lvmi}301"][0]
+    assert f'${sex}2="M",{lvmi}2>115' in rules[f"{lvmi}2:{lvmi}301"][0]
+    assert rules[f"{rwt}2:{rwt}301"] == [f"AND(ISNUMBER({rwt}2),{rwt}2>0.42)"]
+    assert rules[f"A2:{check}301"] == [f'${check}2="error"']
+    checks = [ws[f"{check}{r}"].value for r in range(2, 302)]
+    assert checks.count("error") == 3  # the sample list's rows with an error (the CLI says 3)
+    legend = [ws[f"{col['Marks (legend)']}{r}"].value for r in (2, 3)]
+    assert legend[0].startswith("Blue") and legend[1].startswith("Orange")
+    fills = {s.fill.bgColor.rgb for s in wb._differential_styles.styles}
+    assert len(fills) == 2  # two tints of the Okabe-Ito palette (Okabe M, Ito K, 2008)
+    for name in ("Studies", "Lab notes", "wallstress results", "wallstress findings"):
+        assert not list(wb[name].conditional_formatting), name  # marks on the key sheet only

@@ -308,6 +308,25 @@ class _Registries:
             )
         text = _insert_children(text, "cellXfs", "".join(xfs), len(xfs))
         self._bump(part, "cellXfs", len(xfs))
+        # the differential formats of our conditional marks (after any of the workbook's own)
+        dxfs = [
+            f'<{p}dxf><font><b/></font><fill><patternFill patternType="solid">'
+            f'<bgColor rgb="{rgb}"/></patternFill></fill></{p}dxf>'
+            for rgb in MARK_FILLS.values()
+        ]
+        dxf_base = len(found["dxfs"]) if "dxfs" in found else 0
+        if "dxfs" in found:
+            text = _insert_children(text, "dxfs", "".join(dxfs), len(dxfs))
+        else:  # where the schema puts it: after cellStyles (or cellXfs)
+            after = "cellStyles" if "cellStyles" in found else "cellXfs"
+            close = re.search(rf"</{re.escape(p)}{after}\s*>|<{re.escape(p)}{after}\b[^>]*/>", text)
+            if close is None:
+                raise SpliceError(f"no <{after}> element found where expected")
+            element = f'<{p}dxfs count="{len(dxfs)}">{"".join(dxfs)}</{p}dxfs>'
+            text = text[: close.end()] + element + text[close.end() :]
+        self._bump(part, "dxfs", len(dxfs))
+        for k, key in enumerate(MARK_FILLS):
+            ids[f"dxf:{key}"] = dxf_base + k
         self.text[part] = text
         return ids
 
@@ -409,6 +428,12 @@ def _bold_font(font0, p: str) -> str:
         parts.append(f"<{p}{local}{attrs}/>")
     return f"<{p}font>{''.join(parts)}</{p}font>"
 
+
+# Fills of the conditional marks on our sheets: light tints of the Okabe-Ito colour-blind-safe
+# palette (Okabe M, Ito K, Color Universal Design, 2008): sky blue for a value beyond the
+# reference limit, orange for a row with an error finding (told apart in every common colour
+# vision deficiency; the legend on the sheet says which is which).
+MARK_FILLS = {"limit": "FFBFE3F7", "error": "FFF9D9A6"}
 
 _MINIMAL_STYLES = (
     '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'

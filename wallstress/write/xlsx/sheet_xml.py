@@ -68,12 +68,17 @@ class SheetSpec:
         Column name -> display format code (e.g. ``"0.0"``), applied to numeric columns only.
     widths : sequence of float or None, optional
         Column widths [characters] by position; None (or a short sequence) sizes the rest by content.
+    marks : sequence of (range, formula, kind), optional
+        Conditional formats: cells of ``range`` (``"G2:G301"``) where ``formula`` (written for the
+        range's top-left cell) is true get the fill of ``kind`` (``registries.MARK_FILLS``).
     """
 
     frame: pd.DataFrame | Callable[[list[str]], pd.DataFrame]
     header_units: Mapping[str, str] | None = None
     number_formats: Mapping[str, str] | None = None
     widths: Sequence[float | None] | None = None
+    # conditional marks: (cell range, formula relative to its top-left cell, "limit" or "error")
+    marks: Sequence[tuple[str, str, str]] = ()
 
 
 # ------------------------------------------------------------------------------------------------
@@ -103,6 +108,7 @@ class _Column:
 class _Plan:
     n_rows: int
     columns: list[_Column]
+    marks: Sequence[tuple[str, str, str]] = ()
 
     @property
     def formats(self) -> set[str]:
@@ -128,7 +134,7 @@ def _plan_sheet(spec: SheetSpec, sheet: str, date1904: bool, notes: list[str]) -
         wanted = widths[j] if j < len(widths) else None
         col.width = float(wanted) if wanted else min(60.0, max(8.0, len(header) + 2, col.width + 2))
         columns.append(col)
-    return _Plan(len(frame), columns)
+    return _Plan(len(frame), columns, tuple(spec.marks))
 
 
 def _prepare(col: pd.Series, header: str, sheet: str, date1904: bool, notes) -> _Column:
@@ -471,6 +477,12 @@ def _write_sheet(fh, plan: _Plan, style_ids: dict[str, int]) -> None:
     tail = ["</sheetData>"]
     if n_cols:
         tail.append(f'<autoFilter ref="A1:{last}"/>')
+    for k, (ref, formula, kind) in enumerate(plan.marks, start=1):
+        tail.append(
+            f'<conditionalFormatting sqref="{ref}"><cfRule type="expression" '
+            f'dxfId="{style_ids["dxf:" + kind]}" priority="{k}"><formula>'
+            f"{_escape_py(formula)}</formula></cfRule></conditionalFormatting>"
+        )
     tail.append(
         '<pageMargins left="0.4" right="0.4" top="0.6" bottom="0.6" header="0.3" footer="0.3"/>'
         # landscape, one page wide and as many pages long as needed

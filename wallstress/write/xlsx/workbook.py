@@ -185,7 +185,9 @@ def _sheet_specs(parts, methods, source, out, report) -> dict:
                 if fmt and pd.api.types.is_float_dtype(dtype):
                     formats[h] = fmt
         renamed = frame.set_axis(headers, axis=1) if headers != columns else frame
-        specs[part.sheet] = sheet_xml.SheetSpec(renamed, number_formats=formats)
+        specs[part.sheet] = sheet_xml.SheetSpec(
+            renamed, number_formats=formats, marks=tuple(part.marks)
+        )
 
     def methods_frame(notes):
         return methods_rows(methods, source, notes=[*report.notes, *notes], outputs=[out])
