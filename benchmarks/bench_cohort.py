@@ -69,8 +69,10 @@ def main(argv=None) -> None:
         t_add, done = timed(lambda: cohort_add(d / "import.duckdb", [src], Options()))
         assert done.imports[0].new_studies == n_import, done.imports
         t_again, _ = timed(lambda: cohort_add(d / "import.duckdb", [src], Options()))
-        print(f"import {n_import:,} studies: {t_add:.2f} s; read+analyse in memory {t_mem:.2f} s;"
-              f" ratio {t_add / t_mem:.2f}; the same file again {t_again:.2f} s (nothing changed)")
+        print(
+            f"import {n_import:,} studies: {t_add:.2f} s; read+analyse in memory {t_mem:.2f} s;"
+            f" ratio {t_add / t_mem:.2f}; the same file again {t_again:.2f} s (nothing changed)"
+        )
 
         big = d / "clinic.csv"
         clinic_export(n_patients, n_visits).to_csv(big, index=False)
@@ -79,9 +81,11 @@ def main(argv=None) -> None:
         t_file, r_file = timed(lambda: track_file(big, d / "from_file.parquet"))
         t_store, r_store = timed(lambda: track_sources([store], d / "from_store.parquet"))
         assert r_store.patients == n_patients
-        print(f"follow-up {n_patients:,} patients x {n_visits} visits: from the store "
-              f"{t_store:.2f} s; from the CSV in memory {t_file:.2f} s; ratio "
-              f"{t_store / t_file:.2f} (the store filled in {t_fill:.2f} s)")
+        print(
+            f"follow-up {n_patients:,} patients x {n_visits} visits: from the store "
+            f"{t_store:.2f} s; from the CSV in memory {t_file:.2f} s; ratio "
+            f"{t_store / t_file:.2f} (the store filled in {t_fill:.2f} s)"
+        )
 
 
 if __name__ == "__main__":
