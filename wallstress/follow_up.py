@@ -253,10 +253,7 @@ def track_sources(
     fields = [c for c in studies.columns if c in _CANONICAL]
     analysis = analyse_with_findings(studies[fields], options)
     tracking = track(analysis, options, within_subject_sd_g=within_subject_sd_g, same_day=same_day)
-    rows = tracking.visits["input_row"].to_numpy()
-    for name in ("sbp_mmhg", "dbp_mmhg"):
-        if name in studies.columns:
-            tracking.visits[name] = studies[name].to_numpy()[rows]
+    rows = tracking.visits["input_row"].to_numpy()  # a visit's (last) study: where it came from
     for name in (*PROVENANCE, "exported_patient_id"):
         if name in studies.columns:
             tracking.visits[name] = studies[name].to_numpy()[rows]
