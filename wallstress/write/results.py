@@ -179,7 +179,7 @@ def with_marks(key: pd.DataFrame, analysis) -> tuple[pd.DataFrame, tuple]:
     and the sheet's conditional marks: rows with an error; LVMI and RWT beyond the limits of the
     reference set in force (sex-specific where the set is)."""
     from wallstress.analysis.references import load_set
-    from wallstress.write.xlsx.sheet_xml import col_letters
+    from wallstress.read.sheet_bounds import col_letters
 
     key = key.copy()
     n = len(key)

@@ -69,16 +69,14 @@ class SheetSpec:
     widths : sequence of float or None, optional
         Column widths [characters] by position; None (or a short sequence) sizes the rest by content.
     marks : sequence of (range, formula, kind), optional
-        Conditional formats: cells of ``range`` (``"G2:G301"``) where ``formula`` (written for the
-        range's top-left cell) is true get the fill of ``kind`` (``registries.MARK_FILLS``).
+        Conditional formats: where ``formula`` (for the range's first cell) holds, the fill of ``kind``.
     """
 
     frame: pd.DataFrame | Callable[[list[str]], pd.DataFrame]
     header_units: Mapping[str, str] | None = None
     number_formats: Mapping[str, str] | None = None
     widths: Sequence[float | None] | None = None
-    # conditional marks: (cell range, formula relative to its top-left cell, "limit" or "error")
-    marks: Sequence[tuple[str, str, str]] = ()
+    marks: Sequence[tuple[str, str, str]] = ()  # (range, formula, "limit" | "error")
 
 
 # ------------------------------------------------------------------------------------------------
@@ -462,17 +460,8 @@ def _write_sheet(fh, plan: _Plan, style_ids: dict[str, int]) -> None:
                 prefix, suffix = affixes[j]
                 k = pa.array(kinds)
                 cells.append(_join(letters[j], rownum, prefix.take(k), values, suffix.take(k), ""))
-            rows = _join(
-                '<row r="',
-                rownum,
-                '">',
-                *cells,
-                "</row>",
-                "",
-                null_handling="replace",
-                null_replacement="",
-            )
-            _write_buffer(fh, rows)
+            opts = {"null_handling": "replace", "null_replacement": ""}
+            _write_buffer(fh, _join('<row r="', rownum, '">', *cells, "</row>", "", **opts))
 
     tail = ["</sheetData>"]
     if n_cols:
