@@ -186,11 +186,13 @@ def track_sources(
     escape_formulas: bool = False,
 ) -> TrackSources:
     """Follow-up over several study lists and cohort stores: each file read by its own headers and
-    units, provenance kept, the clinic's patient map applied (and kept in a store given)."""
-    from wallstress.cohort.exports import PROVENANCE, expand, joined, read_export, unit_changes
-    from wallstress.cohort.imports import load_studies, save_map
+    units, provenance kept, the clinic's patient map applied (and kept in a store given). Files go
+    through a store in memory, so that a study in two exports is one study and a value that
+    differs is a conflict, as in a store on disk."""
+    from wallstress.cohort.exports import PROVENANCE, expand, read_export, unit_changes
+    from wallstress.cohort.imports import add_export, load_studies, save_map
     from wallstress.cohort.patients import apply_map, propose, read_map
-    from wallstress.cohort.store import is_store, open_store
+    from wallstress.cohort.store import is_store, open_store, scratch_store
     from wallstress.tracking.track import SHEETS as TRACKING_SHEETS
     from wallstress.tracking.track import track, tracking_sheets
 
@@ -198,10 +200,10 @@ def track_sources(
     out = Path(out)
     stores = [Path(s) for s in sources if Path(s).is_file() and is_store(s)]
     files = expand([s for s in sources if Path(s) not in stores])
-    extra = ["proposed matches", "exports"]
+    extra = ["proposed matches", "conflicts", "exports"]
     check_outputs(planned_outputs(out, sheet_keys([*TRACKING_SHEETS, *extra])), [*files, *stores])
     mapping = read_map(patient_map) if patient_map else {}
-    frames, listed, exports = [], [], []
+    frames, listed, exports, conflicts = [], [], [], []
     with protected_inputs(*files, *stores):
         for s in stores:
             con = open_store(s, read_only=not mapping)
@@ -209,6 +211,7 @@ def track_sources(
                 if mapping:
                     save_map(con, mapping, Path(patient_map).name)
                 frames.append(load_studies(con))
+                conflicts.append(con.execute("SELECT * FROM conflicts").df())
                 listed.append(
                     con.execute(
                         "SELECT file_name, sha256, rows, new_studies, conflicts, units FROM imports"
@@ -219,22 +222,20 @@ def track_sources(
             finally:
                 con.close()
         exports = [read_export(f, options) for f in files]
-    if exports:
-        table, _ = joined(exports)
-        table["exported_patient_id"] = table.get("patient_id")
-        frames.append(table)
-        listed.append(
-            pd.DataFrame(
-                {
-                    "file_name": [e.path.name for e in exports],
-                    "sha256": [e.sha256 for e in exports],
-                    "rows": [len(e.canonical) for e in exports],
-                    "units": [
-                        ";".join(f"{k}={v}" for k, v in sorted(e.units.items())) for e in exports
-                    ],
-                }
+    if exports:  # through a store in memory: one study per key, conflicts as the store has them
+        con = scratch_store()
+        try:
+            for e in exports:
+                add_export(con, e)
+            frames.append(load_studies(con))
+            conflicts.append(con.execute("SELECT * FROM conflicts").df())
+            listed.append(
+                con.execute(
+                    "SELECT file_name, sha256, rows, new_studies, conflicts, units FROM imports"
+                ).df()
             )
-        )
+        finally:
+            con.close()
     if not frames:
         raise InputError("no study list or cohort store was given; name files, folders or a store")
     studies = pd.concat(frames, ignore_index=True)
@@ -268,6 +269,7 @@ def track_sources(
     sheets = {
         **tracking_sheets(tracking),
         "proposed matches": proposals,
+        "conflicts": pd.concat(conflicts, ignore_index=True),
         "exports": pd.concat(listed, ignore_index=True),
     }
     written = write_sheets(out, sheets, methods, escape_formulas=escape_formulas)
@@ -277,6 +279,12 @@ def track_sources(
         f"{len(stores)} stores"
     ]
     notes += [f"unit changed between exports: {n}" for n in notes_units]
+    n_conflicts = sum(len(c) for c in conflicts)
+    if n_conflicts:
+        notes.append(
+            f"{n_conflicts} values differ between exports of the same study (the newest export "
+            "wins); see the sheet 'conflicts'"
+        )
     if len(proposals):
         notes.append(
             f"{len(proposals)} identifiers look like another patient's (see the sheet 'proposed "

@@ -163,6 +163,11 @@ def test_the_clinic_from_files_and_from_the_store_gets_the_courses_right(clinic,
         result.share_right = share
     book = openpyxl.load_workbook(tmp_path / "b.xlsx", read_only=True)
     assert "exports" in book.sheetnames and "proposed matches" in book.sheetnames
+    # the study exported twice with a corrected septum: one study and one conflict, either way
+    assert len(from_files.tracking.visits) == len(from_store.tracking.visits)
+    for name in ("a.xlsx", "b.xlsx"):
+        conflicts = pd.read_excel(engine="calamine", io=tmp_path / name, sheet_name="conflicts")
+        assert len(conflicts) == 1 and conflicts.loc[0, "field"] == "ivsd_cm"
     visits = pd.read_excel(engine="calamine", io=tmp_path / "b.xlsx", sheet_name="visits")
     assert "source_file" in visits.columns and "sbp_mmhg [mmHg]" in visits.columns
 

@@ -3,8 +3,8 @@
 A clinic's exports change over the years: headers, identifier forms and units switch with the echo
 system. Each file is therefore read and analysed alone (its own header matching, its own unit
 detection), and its studies carry where they came from: file, sheet, row and the file's SHA-256.
-The studies of several files are joined under canonical names in internal units (cm, kg, mmHg), so
-that tracking sees one list.
+Every export's studies are under canonical names in internal units (cm, kg, mmHg), so that a store
+(on disk, or in memory for a follow-up straight from files) holds them as one list.
 """
 
 from __future__ import annotations
@@ -129,24 +129,3 @@ def unit_changes(exports) -> list[str]:
                 )
             last[name] = (unit, e.path.name)
     return notes
-
-
-def joined(exports: list[Export]) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """The exports' studies as one canonical table (provenance kept) and their findings, rows
-    renumbered to the joined table."""
-    frames, found, start = [], [], 0
-    for e in exports:
-        frames.append(e.canonical)
-        f = e.findings.copy()
-        f = f[f["row"] >= 0].copy()
-        f["row"] = f["row"] + start
-        f["source_file"] = e.path.name
-        found.append(f)
-        start += len(e.canonical)
-    table = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
-    for name in ("study_id", "patient_id"):  # one text type across files (some files give numbers)
-        if name in table.columns:
-            col = table[name]
-            table[name] = col.astype("string").astype(object).where(col.notna())
-    findings = pd.concat(found, ignore_index=True) if found else pd.DataFrame()
-    return table, findings

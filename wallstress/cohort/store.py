@@ -151,3 +151,12 @@ def is_store(path) -> bool:
     except OSError:
         return False
     return head[8:12] == b"DUCK"
+
+
+def scratch_store():
+    """An empty store in memory: the same rules for a follow-up straight from files."""
+    import duckdb
+
+    con = duckdb.connect(":memory:")
+    create_schema(con)
+    return con
