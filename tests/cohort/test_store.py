@@ -240,3 +240,24 @@ def test_the_yearly_routine_in_three_commands(clinic, tmp_path):
     assert followed.returncode == 0, followed.stderr
     assert "60 patients" in followed.stdout
     assert Path(tmp_path / "f.xlsx").is_file()
+
+
+def test_export_to_parquet_for_the_dask_path(clinic, tmp_path):
+    """README: a store that outgrows one machine goes to parquet; the studies read back and
+    analyse as a study list (canonical names, provenance kept)."""
+    import wallstress
+    from wallstress.follow_up import cohort_export
+
+    store = tmp_path / "clinic.duckdb"
+    cohort_add(store, _files(clinic)[:3], Options())
+    written = cohort_export(store, tmp_path / "parquet")
+    assert {p.name for p in written} >= {"studies.parquet", "imports.parquet", "conflicts.parquet"}
+    studies = pd.read_parquet(tmp_path / "parquet" / "studies.parquet")
+    con = S.open_store(store, read_only=True)
+    try:
+        assert len(studies) == status(con)["studies"]
+    finally:
+        con.close()
+    assert {"source_file", "source_row", "source_sha256"} <= set(studies.columns)
+    analysed = wallstress.analyse(studies.drop(columns=["study_key"]))
+    assert analysed["lv_mass_g"].notna().mean() > 0.95
