@@ -219,6 +219,13 @@ def test_match_header():
     assert match_header("favourite colour") == (None, "")
 
 
+def test_ids_of_any_python_objects_are_read():
+    """Found by the fuzz test: a column mixing a date and a number beyond 64-bit integers."""
+    out = parse_ids(pd.Series([pd.Timestamp("2000-01-01"), 9223372036854775808.0], dtype=object))
+    # beyond 2**53 a float is not an exact whole number: written as Python writes it
+    assert out.iloc[0].startswith("2000-01-01") and out.iloc[1] == "9.223372036854776e+18"
+
+
 @pytest.mark.parametrize(
     "header, field",
     [

@@ -376,7 +376,7 @@ def _all_text(arr: np.ndarray) -> pa.Array | None:
     as None or NaN), else None (numbers among the text: the general path writes each as an id)."""
     try:
         text = pa.array(arr, from_pandas=True)
-    except (pa.ArrowInvalid, pa.ArrowTypeError):
+    except (pa.ArrowException, OverflowError, TypeError, ValueError):  # not text throughout
         return None
     return text if pa.types.is_string(text.type) or pa.types.is_large_string(text.type) else None
 
