@@ -396,6 +396,9 @@ def serve(
     max_upload_mb: float = typer.Option(
         200, "--max-upload-mb", help="Largest study list the page takes, in MB."
     ),
+    store: Path = typer.Option(
+        None, "--store", help="A clinic's cohort store whose patients the page may follow."
+    ),
 ):
     """A local web page for people who don't use a terminal: upload, see, download."""
     from wallstress.web.server import serve as run_server
@@ -404,7 +407,14 @@ def serve(
         _say(f"--port {port} is not usable; choose a port from 1024 to 65535", 2)
     if not max_upload_mb > 0:
         _say(f"--max-upload-mb {max_upload_mb} is not usable; give a size above 0", 2)
-    _guard(run_server, host, port, open_browser=not no_browser, max_upload_mb=max_upload_mb)
+    _guard(
+        run_server,
+        host,
+        port,
+        open_browser=not no_browser,
+        max_upload_mb=max_upload_mb,
+        store=store,
+    )
 
 
 def main() -> None:

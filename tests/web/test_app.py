@@ -197,3 +197,30 @@ def test_serve_command_checks_its_options_and_address(monkeypatch):
         port = taken.getsockname()[1]
         busy = runner.invoke(app, ["serve", "--port", str(port), "--no-browser"])
     assert busy.exit_code == 1 and "in use" in busy.output and "--port" in busy.output
+
+
+def test_a_cohort_store_named_at_start_shows_its_patients(tmp_path):
+    """``serve --store``: the page follows the store's patients (the same job as ``track``) and
+    lists what went in; the browser names no path."""
+    from tests.cohort.clinic import write_exports
+    from wallstress.follow_up import cohort_add
+    from wallstress.options import Options
+
+    write_exports(tmp_path / "exports")
+    store = tmp_path / "clinic.duckdb"
+    cohort_add(store, [tmp_path / "exports"], Options())
+    app = create_app(runs_root=tmp_path, store=store)
+    with TestClient(app, base_url=BASE) as c:
+        page = c.get("/")
+        assert "clinic.duckdb" in page.text and 'id="follow"' in page.text
+        token = re.search(r'name="csrf" value="([^"]+)"', page.text).group(1)
+        sent = c.post("/cohort", data={"csrf": token}, follow_redirects=False)
+        assert sent.status_code == 303
+        text = _finished(c, sent.headers["location"])
+        assert 'id="patients"' in text and 'id="imports"' in text
+        assert "brookvale_echo_2025.csv" in text
+        assert "identifiers look like another patient" in text  # the map is not applied
+        assert re.search(r'files/clinic\.followup\.xlsx"', text)
+    with TestClient(create_app(runs_root=tmp_path), base_url=BASE) as c:
+        token = re.search(r'name="csrf" value="([^"]+)"', c.get("/").text).group(1)
+        assert c.post("/cohort", data={"csrf": token}).status_code == 404

@@ -166,15 +166,19 @@ def _choices() -> dict[str, dict]:
 
 def create_app(
     *,
+    store=None,
     max_upload_mb: float = DEFAULT_MAX_UPLOAD_MB,
     runs_root=None,
     workers: int = 2,
     allowed_hosts=("127.0.0.1", "localhost"),
 ) -> Starlette:
-    """The web application. ``runs_root``: where the private temporary folder of the runs is made
-    (default: the system's temporary folder); ``allowed_hosts``: Host headers answered."""
+    """The web application. ``store``: a clinic's cohort store the page may follow (named on the
+    command line, never by the browser); ``runs_root``: where the private temporary folder of the
+    runs is made (default: the system's temporary folder); ``allowed_hosts``: Host headers
+    answered."""
     runs = Runs(runs_root, workers=workers)
     choices = _choices()
+    store_name = Path(store).name if store else None
 
     async def index(request: Request):
         return _with_token(
@@ -184,6 +188,7 @@ def create_app(
             labels=OPTION_LABELS,
             accept=",".join(UPLOAD_SUFFIXES),
             max_upload_mb=max_upload_mb,
+            store_name=store_name,
         )
 
     async def start(request: Request):
@@ -205,6 +210,16 @@ def create_app(
             run = runs.start(upload.filename, data, Options(**picked))
         except ValueError as exc:
             raise HTTPException(400, str(exc)) from exc
+        return RedirectResponse(f"/runs/{run.id}", status_code=303)
+
+    async def start_cohort(request: Request):
+        form = await request.form(max_files=0, max_fields=len(choices) + 2)
+        _check_form(request, form)
+        if store is None:
+            raise HTTPException(404, "no cohort store was named when this page was started")
+        run = runs.start_cohort(
+            Path(store), Options(reference=str(form.get("reference") or Options().reference))
+        )
         return RedirectResponse(f"/runs/{run.id}", status_code=303)
 
     def _run(request: Request):
@@ -267,6 +282,7 @@ def create_app(
         routes=[
             Route("/", index),
             Route("/runs", start, methods=["POST"]),
+            Route("/cohort", start_cohort, methods=["POST"]),
             Route("/runs/{run_id}", show),
             Route("/runs/{run_id}/files/{name}", download),
             Route("/runs/{run_id}/delete", delete, methods=["POST"]),

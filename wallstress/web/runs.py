@@ -90,6 +90,58 @@ class Runs:
         self._pool.submit(self._work, run, src)
         return run
 
+    def start_cohort(self, store: Path, options: Options) -> Run:
+        """A run over the clinic's cohort store named when the server was started (read only;
+        the browser names no path)."""
+        self._expire()
+        run_id = secrets.token_urlsafe(16)
+        folder = self.root / run_id
+        (folder / "results").mkdir(parents=True, mode=0o700)
+        run = Run(run_id, folder, Path(store).name, options)
+        with self._lock:
+            self._runs[run_id] = run
+        self._pool.submit(self._work_cohort, run, Path(store))
+        return run
+
+    def _work_cohort(self, run: Run, store: Path) -> None:
+        from wallstress.follow_up import cohort_status, track_sources
+        from wallstress.web.summary import summarise
+
+        run.state = "working"
+        try:
+            run.step = "reading the store and following every patient"
+            result = track_sources(
+                [store], run.folder / "results" / f"{store.stem}.followup.xlsx", run.options
+            )
+            for path in result.written:
+                run.downloads[path.name] = path
+            run.step = "summarising"
+            run.summary = summarise(result, result.tracking, run.options)
+            run.summary["notes"] = result.notes
+            status = cohort_status(store)
+            run.summary["imports"] = [
+                (
+                    str(r.imported_utc),
+                    str(r.file_name),
+                    int(r.rows),
+                    int(r.new_studies),
+                    int(r.conflicts),
+                )
+                for r in status["imports"].itertuples(index=False)
+            ]
+            run.summary["open_proposals"] = len(status["proposals"])
+            run.state = "done"
+        except Exception as exc:
+            self._failed(run, exc, folder=None)
+
+    def _failed(self, run: Run, exc: Exception, folder: Path | None) -> None:
+        message, code = describe(exc)
+        if code == UNEXPECTED:
+            traceback.print_exc(file=sys.stderr)
+            message += "; the terminal that runs 'wallstress serve' shows the details"
+        run.message = message.replace(str(folder) + "/", "") if folder else message
+        run.state = "failed"
+
     def get(self, run_id: str) -> Run | None:
         with self._lock:
             run = self._runs.get(run_id)
@@ -150,9 +202,4 @@ class Runs:
             run.summary["notes"] = results.notes
             run.state = "done"
         except Exception as exc:  # the page shows one message; the server keeps running
-            message, code = describe(exc)
-            if code == UNEXPECTED:
-                traceback.print_exc(file=sys.stderr)
-                message += "; the terminal that runs 'wallstress serve' shows the details"
-            run.message = message.replace(str(run.folder / "input") + "/", "")
-            run.state = "failed"
+            self._failed(run, exc, folder=run.folder / "input")

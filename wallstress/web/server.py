@@ -35,6 +35,7 @@ def serve(
     *,
     open_browser: bool = True,
     max_upload_mb: float = 200,
+    store=None,
 ) -> None:
     """Run the page until interrupted; the runs' files are removed when it stops."""
     import uvicorn
@@ -52,7 +53,11 @@ def serve(
             "this page and send files to it; use it only on a network you trust",
             file=sys.stderr,
         )
-    app = create_app(max_upload_mb=max_upload_mb, allowed_hosts=hosts)
+    if store is not None:  # a clear message now rather than on the page
+        from wallstress.cohort.store import open_store
+
+        open_store(store, read_only=True).close()
+    app = create_app(max_upload_mb=max_upload_mb, allowed_hosts=hosts, store=store)
     url = f"http://{'127.0.0.1' if is_loopback(host) else host}:{port}/"
     print(f"wallstress: the page is at {url} (Ctrl+C stops it and deletes the uploaded files)")
     if open_browser:

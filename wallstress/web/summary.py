@@ -153,6 +153,8 @@ def summarise(results, tracking, options) -> dict:
         "cautions": [CLINICAL_CAUTION, FROM_MEMORY_CAUTION],
         "unverified": list(analysis.methods.get("unverified", [])),
         "patients": None,
+        "imports": [],  # a cohort store's imports (set by the cohort run)
+        "open_proposals": 0,
     }
     if tracking is not None:
         p = tracking.patients.copy()
