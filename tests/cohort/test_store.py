@@ -178,7 +178,7 @@ def test_schema_migration_from_version_1(tmp_path):
     S.create_schema(con, version=1)
     assert S.schema_version(con) == 1
     con.close()
-    con = S.open_store(path)
+    con = S.open_store(path, read_only=True)  # reading an old store upgrades it first
     try:
         assert S.schema_version(con) == S.SCHEMA_VERSION
         cols = [r[0] for r in con.execute("DESCRIBE imports").fetchall()]

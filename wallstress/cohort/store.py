@@ -140,6 +140,10 @@ def open_store(path, *, create: bool = False, read_only: bool = False):
     except Exception:
         con.close()
         raise
+    if read_only and not new and version < SCHEMA_VERSION:  # upgrade once, then read
+        con.close()
+        open_store(path).close()
+        return open_store(path, read_only=True)
     return con
 
 
