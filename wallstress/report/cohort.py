@@ -105,7 +105,7 @@ def _cohort_section(tracking, reference_set, figs: _Figures) -> str:
             )
     for name, heading in (
         ("prevalence_by_year", "Geometry by year of follow-up"),
-        ("prevalence_by_sex", "Geometry by sex"),
+        ("prevalence_by_sex", "Geometry by sex and year of follow-up"),
     ):
         t = _prevalence_wide(_tracking_table(tracking, name))
         if t is not None and len(t):
