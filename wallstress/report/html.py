@@ -18,6 +18,7 @@ import pandas as pd
 
 from wallstress.figures import save as fig_mod
 from wallstress.figures.common import GEOMETRY_LABELS
+from wallstress.schema.display import decimals
 from wallstress.schema.outputs import OUTPUTS
 from wallstress.schema.vocabulary import OUT
 
@@ -149,7 +150,10 @@ def _table(df: pd.DataFrame, *, max_rows: int = MAX_TABLE_ROWS, index: bool = Fa
         f'<th class="num">{_label(c)}</th>' if nums[c] else f"<th>{_label(c)}</th>"
         for c in shown.columns
     )
-    cols = [shown[c].to_numpy(dtype=object) for c in shown.columns]
+    cols = [
+        _fixed(shown[c], decimals(str(c))) if nums[c] else shown[c].to_numpy(dtype=object)
+        for c in shown.columns
+    ]
     classes = [
         ' class="num"' if nums[c] else (' class="nw"' if short[c] else "") for c in shown.columns
     ]
@@ -167,6 +171,15 @@ def _table(df: pd.DataFrame, *, max_rows: int = MAX_TABLE_ROWS, index: bool = Fa
     return (
         f"<table{attr}><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>{extra}"
     )
+
+
+def _fixed(values: pd.Series, places: int | None) -> np.ndarray:
+    """A numeric column as text with the decimals its measure needs (the output registry's, or
+    its unit's display format); other numbers as :func:`_fmt` writes them."""
+    if places is None or not pd.api.types.is_float_dtype(values.dtype):
+        return values.to_numpy(dtype=object)
+    v = values.to_numpy(dtype=float)
+    return np.array(["" if np.isnan(x) else f"{x:.{places}f}" for x in v], dtype=object)
 
 
 def _kv(pairs) -> str:

@@ -170,8 +170,12 @@ def label(name: str) -> str:
 
 
 def decimals(name: str) -> int | None:
-    """How many decimals a reader needs for a column (None: text or not known)."""
+    """How many decimals a reader needs for a column (None: text or not known): the output
+    registry's, else those of the display format of the column's unit."""
     out = BY_OUTPUT.get(str(name))
     if out is not None:
         return out.decimals
-    return {"m2": 2, "cm": 2, "kg": 1, "mmHg": 0, "bpm": 0, "years": 0}.get(column_unit(str(name)))
+    fmt = _NUMBER_FORMATS.get(column_unit(str(name)))
+    if fmt is None:
+        return None
+    return len(fmt.split(".", 1)[1]) if "." in fmt else 0
