@@ -129,16 +129,19 @@ def write_results(
     if in_place or Path(out_path or "").suffix.lower() == ".xlsx":
         table = numbers_as_numbers(table, getattr(source, "numbers", None))
     parts = [_Part(names["results"], "", table, unit_columns="outputs")]
+    methods = dict(analysis.methods or {})
     if in_place or Path(out_path or "").suffix.lower() == ".xlsx":  # a sheet to read and print
         key, marks = with_marks(key_measures(analysis), analysis)
         parts.append(_Part(names["key_measures"], "", key, unit_columns="labels", marks=marks))
+        # its labels, one step from the names the results sheet uses
+        methods["key_measures_sheet_columns"] = {label(c): c for c in key.columns}
     parts.append(
         _Part(names["findings"], results_keys()[1], _findings_for_writing(analysis.findings))
     )
     return _write_bundle(
         out_path,
         parts,
-        analysis.methods or {},
+        methods,
         source=source,
         in_place=in_place,
         escape_formulas=escape_formulas,

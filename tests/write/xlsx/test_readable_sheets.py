@@ -68,6 +68,10 @@ def test_key_measures_sheet_labels_formats_and_words(written):
     )
     assert ws.cell(2, head.index("Date") + 1).is_date
     assert ws.max_row == 301  # every study, in order
+    # the machine names one step away: the methods sheet pairs each label with its name
+    methods = openpyxl.load_workbook(written)["wallstress methods"]
+    pairs = {str(r[0].value): r[1].value for r in methods.iter_rows() if r[0].value}
+    assert pairs["key_measures_sheet_columns.LVMI/BSA (g/m2)"] == "lvmi_bsa_g_m2"
 
 
 def test_our_sheets_print_landscape_one_page_wide_with_headers(written):
