@@ -261,3 +261,32 @@ def test_export_to_parquet_for_the_dask_path(clinic, tmp_path):
     assert {"source_file", "source_row", "source_sha256"} <= set(studies.columns)
     analysed = wallstress.analyse(studies.drop(columns=["study_key"]))
     assert analysed["lv_mass_g"].notna().mean() > 0.95
+
+
+def test_a_clinic_folder_as_it_really_is(clinic, tmp_path):
+    """A folder also holds notes and a spreadsheet program's lock file; ids keep their leading
+    zeros in the store and differ only in form from the next system's (common practice, no
+    source)."""
+    folder = tmp_path / "exports"
+    shutil.copytree(clinic[0] / "exports", folder)
+    (folder / "readme.txt").write_text("exports from the echo system, one a year\n")
+    (folder / "~$brookvale_echo_2025.xlsx").write_bytes(b"lock")
+    lab = folder / "zz_lab_2026.csv"
+    lab.write_text(
+        "Patient No,Exam No,Exam date,Gender,Height,Weight,IVSd,LVIDd,PWd\n"
+        "0042,007,2026-01-05,F,160,60,0.9,4.6,0.9\n"
+        "42,008,2026-02-05,F,160,60,0.9,4.6,0.9\n"
+    )
+    done = cohort_add(tmp_path / "s.duckdb", [folder], Options())
+    assert sorted(r.file for r in done.imports) == sorted(
+        [f.name for f in _files(clinic)] + [lab.name]
+    )
+    con = S.open_store(tmp_path / "s.duckdb", read_only=True)
+    try:
+        ids = {r[0] for r in con.execute("SELECT patient_id FROM studies").fetchall()}
+        keys = {r[0] for r in con.execute("SELECT study_key FROM studies").fetchall()}
+    finally:
+        con.close()
+    assert {"0042", "42"} <= ids and "id:007" in keys  # as exported, zeros kept
+    pairs = set(zip(done.proposals["exported_id"], done.proposals["patient_id"], strict=True))
+    assert ("0042", "42") in pairs or ("42", "0042") in pairs

@@ -19,11 +19,11 @@ import pandas as pd
 from wallstress.analysis.pipeline import analyse_with_findings
 from wallstress.errors import InputError
 from wallstress.options import Options
-from wallstress.read.studies import read_studies
+from wallstress.read.studies import STUDY_LIST_SUFFIXES, read_studies
 from wallstress.schema.fields import BY_NAME
 
-# the study-list formats looked for in a folder
-STUDY_LIST_SUFFIXES = (".xlsx", ".xlsm", ".ods", ".csv", ".tsv", ".parquet")
+# the study lists looked for in a folder (text notes beside the exports are not taken for one)
+FOLDER_SUFFIXES = tuple(s for s in STUDY_LIST_SUFFIXES if s != ".txt")
 PROVENANCE = ("source_file", "source_sheet", "source_row", "source_sha256")
 
 
@@ -57,12 +57,12 @@ def expand(paths) -> list[Path]:
                 f
                 for f in p.iterdir()
                 if f.is_file()
-                and f.suffix.lower() in STUDY_LIST_SUFFIXES
+                and f.suffix.lower() in FOLDER_SUFFIXES
                 and not f.name.startswith((".", "~$"))
             )
             if not found:
                 raise InputError(
-                    f"{p}: this folder holds no study list ({', '.join(STUDY_LIST_SUFFIXES)})"
+                    f"{p}: this folder holds no study list ({', '.join(FOLDER_SUFFIXES)})"
                 )
             out += found
         elif p.is_file():

@@ -11,8 +11,6 @@ fill where it agrees. Nothing is merged until the clinic's map (``exported_id,pa
 
 from __future__ import annotations
 
-import re
-
 import numpy as np
 import pandas as pd
 
@@ -25,8 +23,7 @@ BIRTH_YEAR_TOLERANCE = 1.0  # common practice, no source
 
 def id_form(text: str) -> str:
     """An identifier with its form taken away: upper case, no separators, no leading zeros."""
-    t = re.sub(r"[\s\-_./]+", "", str(text).upper())
-    return re.sub(r"(?<!\d)0+(?=\d)", "", t)
+    return str(id_forms(pd.Series([text])).iloc[0])
 
 
 def id_forms(ids: pd.Series) -> pd.Series:

@@ -62,6 +62,18 @@ from wallstress.schema.headers import check_columns_option, header_score
 FORMATS: tuple[str, ...] = ("csv", "xlsx", "ods", "parquet")
 
 
+# The file kinds a study list comes in (what ``read_studies`` reads, its contents deciding).
+STUDY_LIST_SUFFIXES: tuple[str, ...] = (
+    ".xlsx",
+    ".xlsm",
+    ".ods",
+    ".csv",
+    ".tsv",
+    ".txt",
+    ".parquet",
+)
+
+
 def read_studies(
     path, sheet: str | None = None, *, max_rows: int | None = None, columns: dict | None = None
 ) -> StudyTable:

@@ -106,25 +106,39 @@ def canonical_header(text) -> str:
     return re.sub(r"\s*\[[^\]]*\]\s*$", "", str(text))
 
 
-# What a clinician reads for the input fields shown beside the measures (the trade's
-# abbreviations; the outputs' labels live in the output registry).
-_FIELD_LABELS: dict[str, str] = {
-    "study_id": "Study",
-    "patient_id": "Patient",
-    "study_date": "Date",
+# What a clinician reads for each input field (the trade's abbreviations; the outputs' labels live in
+# the output registry): the template's headers and the key-measures sheet. Each normalises
+# (schema.fields.normalise_header) to an alias of its field, so a template reads back.
+FIELD_LABELS: dict[str, str] = {
+    "study_id": "Study ID",
+    "patient_id": "Patient ID",
+    "study_date": "Study date",
     "sex": "Sex",
     "age_years": "Age",
     "height_cm": "Height",
     "weight_kg": "Weight",
     "sbp_mmhg": "SBP",
     "dbp_mmhg": "DBP",
-    "hr_bpm": "HR",
+    "sbp_2_mmhg": "SBP 2",
+    "dbp_2_mmhg": "DBP 2",
+    "sbp_3_mmhg": "SBP 3",
+    "dbp_3_mmhg": "DBP 3",
+    "es_pressure_measured_mmhg": "ES pressure",
+    "hr_bpm": "Heart rate",
     "ivsd_cm": "IVSd",
     "lvidd_cm": "LVIDd",
     "pwd_cm": "PWd",
     "ivss_cm": "IVSs",
     "lvids_cm": "LVIDs",
     "pws_cm": "PWs",
+    "lvedv_ml": "LVEDV",
+    "lvesv_ml": "LVESV",
+    "epi_area_cm2": "Epicardial area",
+    "endo_area_cm2": "Endocardial area",
+    "lv_length_cm": "LV length",
+    "lv_semimajor_cm": "Semi-major axis",
+    "lv_truncated_semimajor_cm": "Truncated semi-major axis",
+    "ejection_time_ms": "Ejection time",
 }
 
 # The compact set of columns a clinician scans first (web page, key-measures sheet).
@@ -159,8 +173,8 @@ def label(name: str) -> str:
     if name in BY_OUTPUT:
         out = BY_OUTPUT[name]
         text, unit = out.label, out.unit if out.is_number else ""
-    elif name in _FIELD_LABELS:
-        text, unit = _FIELD_LABELS[name], BY_NAME[name].unit if name in BY_NAME else ""
+    elif name in FIELD_LABELS:
+        text, unit = FIELD_LABELS[name], BY_NAME[name].unit if name in BY_NAME else ""
     elif name in _SHEET_LABELS:
         return _SHEET_LABELS[name]
     else:

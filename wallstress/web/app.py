@@ -31,8 +31,9 @@ from starlette.staticfiles import StaticFiles
 from wallstress import __version__
 from wallstress.analysis.references import list_sets
 from wallstress.options import Options
+from wallstress.read.studies import STUDY_LIST_SUFFIXES
 from wallstress.schema.vocabulary import CLINICAL_CAUTION, FROM_MEMORY_CAUTION, METHOD_CHOICES
-from wallstress.web.runs import UPLOAD_SUFFIXES, Runs
+from wallstress.web.runs import Runs
 
 HERE = Path(__file__).resolve().parent
 CSRF_COOKIE = "wallstress_csrf"
@@ -186,7 +187,7 @@ def create_app(
             "index.html",
             choices=choices,
             labels=OPTION_LABELS,
-            accept=",".join(UPLOAD_SUFFIXES),
+            accept=",".join(STUDY_LIST_SUFFIXES),
             max_upload_mb=max_upload_mb,
             store_name=store_name,
         )

@@ -25,10 +25,9 @@ from pathlib import Path
 from wallstress.errors import UNEXPECTED, describe
 from wallstress.jobs import analyse_file, default_output, report_file, track_file
 from wallstress.options import Options
+from wallstress.read.studies import STUDY_LIST_SUFFIXES
 from wallstress.tracking.track import is_longitudinal, track
 
-# the study-list formats the page takes (what ``read_studies`` reads)
-UPLOAD_SUFFIXES = (".xlsx", ".xlsm", ".ods", ".csv", ".tsv", ".txt", ".parquet")
 EXPIRE_SECONDS = 4 * 3600
 MAX_RUNS = 50
 
@@ -56,7 +55,7 @@ def safe_name(name: str) -> str:
     base = re.split(r"[\\/]", str(name or ""))[-1].strip()
     stem, dot, suffix = base.rpartition(".")
     suffix = f".{suffix.lower()}" if dot else ""
-    if suffix not in UPLOAD_SUFFIXES:
+    if suffix not in STUDY_LIST_SUFFIXES:
         raise ValueError(
             f"{base or 'the file'}: not a study list this page reads; choose an .xlsx, .ods, .csv "
             "or .parquet file"

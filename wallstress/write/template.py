@@ -18,42 +18,10 @@ from datetime import datetime
 from pathlib import Path
 
 from wallstress.errors import OutputError
+from wallstress.schema.display import FIELD_LABELS
 from wallstress.schema.fields import FIELDS, Field
 from wallstress.schema.vocabulary import CLINICAL_CAUTION
 from wallstress.write import safety
-
-# Readable headers; each normalises (schema.normalise_header) to an alias of its field.
-LABELS: dict[str, str] = {
-    "study_id": "Study ID",
-    "patient_id": "Patient ID",
-    "study_date": "Study date",
-    "sex": "Sex",
-    "age_years": "Age",
-    "height_cm": "Height",
-    "weight_kg": "Weight",
-    "sbp_mmhg": "SBP",
-    "dbp_mmhg": "DBP",
-    "sbp_2_mmhg": "SBP 2",
-    "dbp_2_mmhg": "DBP 2",
-    "sbp_3_mmhg": "SBP 3",
-    "dbp_3_mmhg": "DBP 3",
-    "es_pressure_measured_mmhg": "ES pressure",
-    "hr_bpm": "Heart rate",
-    "ivsd_cm": "IVSd",
-    "lvidd_cm": "LVIDd",
-    "pwd_cm": "PWd",
-    "ivss_cm": "IVSs",
-    "lvids_cm": "LVIDs",
-    "pws_cm": "PWs",
-    "lvedv_ml": "LVEDV",
-    "lvesv_ml": "LVESV",
-    "epi_area_cm2": "Epicardial area",
-    "endo_area_cm2": "Endocardial area",
-    "lv_length_cm": "LV length",
-    "lv_semimajor_cm": "Semi-major axis",
-    "lv_truncated_semimajor_cm": "Truncated semi-major axis",
-    "ejection_time_ms": "Ejection time",
-}
 
 # What each field is needed for (fields not listed are optional extras).
 NEEDED_FOR: dict[str, str] = {
@@ -91,7 +59,7 @@ _LAST_ROW = 1_048_576
 
 def header_for(f: Field) -> str:
     """The template header of a field: readable name and unit in brackets (``"LVIDd [cm]"``)."""
-    label = LABELS.get(f.name, f.name)
+    label = FIELD_LABELS.get(f.name, f.name)
     unit = f.unit or ("F/M" if f.kind == "sex" else "")
     return f"{label} [{unit}]" if unit else label
 

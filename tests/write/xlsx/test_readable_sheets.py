@@ -41,8 +41,8 @@ def test_key_measures_sheet_labels_formats_and_words(written):
     head = [c.value for c in ws[1]]
     # the trade's abbreviations with units in brackets (common practice, no source)
     for expected in (
-        "Study",
-        "Date",
+        "Study ID",
+        "Study date",
         "Sex",
         "LV mass (g)",
         "LVMI/BSA (g/m2)",
@@ -66,7 +66,7 @@ def test_key_measures_sheet_labels_formats_and_words(written):
     assert "concentric hypertrophy" in geometry and not any(
         isinstance(g, str) and "_" in g for g in geometry
     )
-    assert ws.cell(2, head.index("Date") + 1).is_date
+    assert ws.cell(2, head.index("Study date") + 1).is_date
     assert ws.max_row == 301  # every study, in order
     # the machine names one step away: the methods sheet pairs each label with its name
     methods = openpyxl.load_workbook(written)["wallstress methods"]
@@ -156,6 +156,8 @@ def test_marks_beyond_limits_and_error_rows_with_a_legend(written):
     legend = [ws[f"{col['Marks (legend)']}{r}"].value for r in (2, 3)]
     assert legend[0].startswith("Blue") and legend[1].startswith("Orange")
     fills = {s.fill.bgColor.rgb for s in wb._differential_styles.styles}
-    assert len(fills) == 2  # two tints of the Okabe-Ito palette (Okabe M, Ito K, 2008)
+    assert (
+        len(fills) == 2
+    )  # two tints of the Okabe-Ito palette (Okabe M, Ito K, Color Universal Design, 2002)
     for name in ("Studies", "Lab notes", "wallstress results", "wallstress findings"):
         assert not list(wb[name].conditional_formatting), name  # marks on the key sheet only

@@ -430,7 +430,7 @@ def _bold_font(font0, p: str) -> str:
 
 
 # Fills of the conditional marks on our sheets: light tints of the Okabe-Ito colour-blind-safe
-# palette (Okabe M, Ito K, Color Universal Design, 2008): sky blue for a value beyond the
+# palette (Okabe M, Ito K, Color Universal Design, 2002, as in figures.common): sky blue for a value beyond the
 # reference limit, orange for a row with an error finding (told apart in every common colour
 # vision deficiency; the legend on the sheet says which is which).
 MARK_FILLS = {"limit": "FFBFE3F7", "error": "FFF9D9A6"}
