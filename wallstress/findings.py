@@ -39,11 +39,23 @@ SEVERITY_DTYPE = pd.CategoricalDtype(("note", "warning", "error"), ordered=True)
 
 
 def _categorical(codes: np.ndarray, categories, dtype=None) -> pd.Categorical:
+    """A Categorical of ``codes`` into ``categories``, which are distinct (they come from a
+    factorize, or are one text): not hashed again to check it."""
     if dtype is None:
-        dtype = pd.CategoricalDtype(pd.Index(list(categories), dtype=object), ordered=False)
+        dtype = _distinct_dtype(pd.Index(list(categories), dtype=object))
     return pd.Categorical.from_codes(
         _small_codes(codes, len(dtype.categories)), dtype=dtype, validate=False
     )
+
+
+def _distinct_dtype(categories: pd.Index) -> pd.CategoricalDtype:
+    """An unordered dtype of categories known to be distinct. pandas' public constructor hashes
+    them to check (~30 ms per 3 x 10^5 texts, once per rule and per merge); its fast path, where
+    this pandas has it, trusts the caller."""
+    fast = getattr(pd.CategoricalDtype, "_from_fastpath", None)
+    if fast is None:  # pragma: no cover - a pandas without it
+        return pd.CategoricalDtype(categories, ordered=False)
+    return fast(categories, ordered=False)
 
 
 def _small_codes(codes, n_categories: int) -> np.ndarray:
@@ -144,6 +156,7 @@ def make(
     column: str = "",
     field: str = "",
     values=None,
+    value_codes=None,
     messages=None,
 ) -> pd.DataFrame:
     """Findings for many rows at once (vectorised: one call per rule, not per row).
@@ -156,9 +169,12 @@ def make(
         The same for every row of this rule.
     values : array-like, optional
         The offending value per row (written as text).
+    value_codes : tuple (codes, texts), optional
+        The value per row as integer codes into a list of distinct texts (each once), instead of
+        ``values``.
     messages : tuple (codes, texts), optional
-        A message per row instead of ``message``: integer codes into a list of distinct texts (as
-        returned by :func:`text_codes`).
+        A message per row instead of ``message``: integer codes into a list of distinct texts,
+        each once (as returned by :func:`text_codes`).
 
     Returns
     -------
@@ -169,7 +185,9 @@ def make(
         raise ValueError(f"severity must be one of {SEVERITIES}, got {severity!r}")
     rows = np.asarray(rows, dtype="int64").ravel()
     n = rows.size
-    if values is None:
+    if value_codes is not None:
+        value = _categorical(*value_codes)
+    elif values is None:
         value = _constant("", n)
     else:
         value = _categorical(*_value_codes(values))
@@ -267,7 +285,7 @@ def _union(cats: list[pd.Categorical], column: str) -> pd.Categorical:
         move = np.append(where[start : start + size], -1)  # code -1 (missing) stays -1
         codes.append(move[cat.codes])
         start += size
-    dtype = pd.CategoricalDtype(pd.Index(union, dtype=object), ordered=False)
+    dtype = _distinct_dtype(pd.Index(union, dtype=object))
     return _categorical(np.concatenate(codes), union, dtype)
 
 
@@ -358,6 +376,31 @@ def _digits(key: int, base: int) -> list[int]:
     return out
 
 
+def _runs(rows: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Where each run of equal values of sorted ``rows`` starts, its length, and each entry's
+    place in its run (0 for the first)."""
+    starts = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]])
+    lengths = np.diff(np.r_[starts, rows.size])
+    return starts, lengths, np.arange(rows.size) - np.repeat(starts, lengths)
+
+
+def _repeated_in_run(values: np.ndarray, rank: np.ndarray) -> np.ndarray:
+    """True where a value equals an earlier value of its run (``rank``: place in the run).
+
+    Each entry is compared with the one k places before it, for k = 1, 2, ... while any run is
+    longer than k: no hash, and the work is the sum of the squared run lengths (a row has a few
+    findings), not a pass over every (row, code) pair.
+    """
+    seen = np.zeros(values.size, dtype=bool)
+    idx = np.flatnonzero(rank >= 1)
+    k = 1
+    while idx.size:
+        seen[idx] |= values[idx] == values[idx - k]
+        k += 1
+        idx = idx[rank[idx] >= k]
+    return seen
+
+
 def flag_codes(findings: pd.DataFrame, n_rows: int) -> tuple[np.ndarray, list[str]]:
     """:func:`flags_per_row` as integer codes per row into a list of distinct flag texts ("" first)."""
     flag = np.zeros(n_rows, dtype=np.int64)
@@ -373,15 +416,14 @@ def flag_codes(findings: pd.DataFrame, n_rows: int) -> tuple[np.ndarray, list[st
         else:
             code_id, code_names = pd.factorize(code.to_numpy(dtype=object)[keep])
         n_codes = len(code_names)
-        # first occurrence of each (row, code), in order of appearance (hash-based, no sort)
-        first = ~pd.Index(rows * n_codes + code_id).duplicated()
-        rows, code_id = rows[first], code_id[first]
-        if rows.size > 1 and (rows[1:] < rows[:-1]).any():
+        if rows.size > 1 and (rows[1:] < rows[:-1]).any():  # in row order, stable within a row
             order = np.argsort(rows, kind="stable")
             rows, code_id = rows[order], code_id[order]
-        starts = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]])
-        lengths = np.diff(np.r_[starts, rows.size])
-        rank = np.arange(rows.size) - np.repeat(starts, lengths)
+        starts, lengths, rank = _runs(rows)
+        first = ~_repeated_in_run(code_id, rank)  # first occurrence of each (row, code)
+        if not first.all():
+            rows, code_id = rows[first], code_id[first]
+            starts, lengths, rank = _runs(rows)
         width = int(lengths.max())
         base = n_codes + 1
         names = np.asarray(code_names, dtype=object)

@@ -23,7 +23,7 @@ from wallstress.analysis.result import Analysis
 from wallstress.options import Options
 from wallstress.prepare.mapping import map_columns
 from wallstress.prepare.rows import non_study_rows, not_study_finding
-from wallstress.prepare.validate import validate_parts
+from wallstress.prepare.validate import across_rows_parts, validate_parts
 from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.schema.units import UNIT_CHOICES
 from wallstress.schema.vocabulary import METHOD_CHOICES, OUT
@@ -89,9 +89,15 @@ def analyse_with_findings(
     refset = load_set(options.reference)
     mapped = map_columns(df, options, numbers=numbers)
     labels = {m["field"]: m["source_column"] for m in mapped.mapping}
-    canonical, vparts = validate_parts(mapped.canonical, labels, df)
-    canonical.index = pd.RangeIndex(len(df))
-    out, cparts, used = _compute_in_partitions(canonical, options, refset)
+    # the checks across rows (repeats: hashing ids) read only ids and dates: they run in a thread
+    # of their own beside the row rules and the measures, and their findings take their place
+    # after the row rules'
+    with ThreadPoolExecutor(1, thread_name_prefix="wallstress-across") as side:
+        across = side.submit(across_rows_parts, mapped.canonical, labels, df)
+        canonical, vparts = validate_parts(mapped.canonical, labels, df, across_rows=False)
+        canonical.index = pd.RangeIndex(len(df))
+        out, cparts, used = _compute_in_partitions(canonical, options, refset)
+        vparts += across.result()
     # every step's findings joined once, in step order (within a row: reader, mapping, validation,
     # measures), sorted by row
     missing = missing_inputs(mapped.canonical.columns, mapped.unmapped)

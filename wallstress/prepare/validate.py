@@ -45,7 +45,7 @@ class _Check:
     assembled from whole columns once at the end.
     """
 
-    def __init__(self, canonical: pd.DataFrame, labels: dict[str, str], raw=None):
+    def __init__(self, canonical: pd.DataFrame, labels: dict[str, str], raw=None, numbers=True):
         self.canonical, self.labels = canonical, labels
         # the user's cells, so that a finding shows a value as it was written (4.7 under
         # "LVIDd (mm)", never the 0.47 cm it was read as)
@@ -53,7 +53,7 @@ class _Check:
         self.nums: dict[str, np.ndarray] = {
             name: canonical[name].to_numpy(dtype=float)
             for name in canonical.columns
-            if name in BY_NAME and BY_NAME[name].kind == "number"
+            if numbers and name in BY_NAME and BY_NAME[name].kind == "number"
         }
         self.given = dict(self.nums)
         self.parts: list[pd.DataFrame] = []
@@ -61,18 +61,25 @@ class _Check:
     def col(self, name: str) -> np.ndarray | None:
         return self.nums.get(name)
 
-    def rule(self, mask, code, severity, message, field, values=None) -> None:
+    def rule(self, mask, code, severity, message, field, values=None, coded=None) -> None:
+        """Findings for the rows in ``mask``, showing each one's cell as the user wrote it (else
+        ``values``). ``coded``: (codes per row, distinct values) of the canonical column, used as
+        the shown values where every flagged cell as written is the same text."""
         mask = np.asarray(mask, dtype=bool)
         if not mask.any():
             return
         rows = np.flatnonzero(mask)
         label = self.labels.get(field)
+        shown_codes = None
         if self.raw is not None and label in self.raw.columns:
             cells = self.raw[label].iloc[rows]  # only the rows flagged, as the user wrote them
             if isinstance(cells.dtype, pd.StringDtype):
                 shown = cells.reset_index(drop=True)  # text: hashed as text, no object per cell
+                shown_codes = None if coded is None else _coded_cells(coded, rows, shown)
             else:
                 shown = cells.to_numpy()
+        elif coded is not None:
+            shown, shown_codes = None, _coded_cells(coded, rows, None)
         else:
             shown = None if values is None else np.asarray(values)[rows]
         self.parts.append(
@@ -83,7 +90,8 @@ class _Check:
                 message=message,
                 column=self.labels.get(field, field),
                 field=field,
-                values=shown,
+                values=None if shown_codes is not None else shown,
+                value_codes=shown_codes,
             )
         )
 
@@ -107,16 +115,47 @@ class _Check:
         )
 
 
+def _coded_cells(coded, rows: np.ndarray, cells: pd.Series | None):
+    """(codes, distinct texts) of the flagged ``rows`` from a column's codes (``coded``: codes
+    per row, distinct values), or None where a flagged cell as written (``cells``) differs from
+    its value (spaces around an id): those are shown as written."""
+    codes, uniques = coded
+    at = codes[rows]
+    if cells is not None:
+        same = pd.Series(uniques.take(at)).reset_index(drop=True) == cells
+        if not same.fillna(False).all():
+            return None
+    used = np.bincount(at, minlength=len(uniques)) > 0
+    renumber = np.cumsum(used) - 1
+    return renumber[at], np.asarray(uniques[used], dtype=object).tolist()
+
+
 def validate_parts(
-    canonical: pd.DataFrame, labels: dict[str, str] | None = None, raw: pd.DataFrame | None = None
+    canonical: pd.DataFrame,
+    labels: dict[str, str] | None = None,
+    raw: pd.DataFrame | None = None,
+    *,
+    across_rows: bool = True,
 ) -> tuple[pd.DataFrame, list[pd.DataFrame]]:
     """:func:`validate` with the findings as one table per rule, in rule order (not yet joined:
     the pipeline joins every step's findings once). ``raw``: the user's cells, whose text the
-    findings show."""
+    findings show. ``across_rows=False`` leaves out :data:`ACROSS_ROWS` (the pipeline runs
+    :func:`across_rows_parts` beside the measures: they read the ids and dates only, and blank
+    nothing)."""
     check = _Check(canonical, labels or {}, raw)
-    for rule in RULES:
+    for rule in RULES if across_rows else ROW_RULES:
         rule(check)
     return check.cleaned(), check.parts
+
+
+def across_rows_parts(
+    canonical: pd.DataFrame, labels: dict[str, str] | None = None, raw: pd.DataFrame | None = None
+) -> list[pd.DataFrame]:
+    """The findings of :data:`ACROSS_ROWS` alone (the last rules of :data:`RULES`)."""
+    check = _Check(canonical, labels or {}, raw, numbers=False)
+    for rule in ACROSS_ROWS:
+        rule(check)
+    return check.parts
 
 
 def ranges(check: _Check) -> None:
@@ -289,7 +328,7 @@ def repeats(check: _Check) -> None:
         )
     if "study_id" in c.columns:
         sid = c["study_id"]
-        dup = _repeated_ids(sid)
+        dup, coded = _repeated_ids(sid)
         if dup.any():
             check.rule(
                 dup,
@@ -297,17 +336,22 @@ def repeats(check: _Check) -> None:
                 "warning",
                 "The same study identifier appears on more than one row.",
                 "study_id",
-                sid.to_numpy(dtype=object),
+                sid.to_numpy(dtype=object) if coded is None else None,
+                coded=coded,
             )
 
 
-# In order (a rule sees the values the rules before it blanked).
-RULES = (ranges, diameters, walls, pressures, age, sex, repeats)
+# In order (a rule sees the values the rules before it blanked). A row rule reads its own row; the
+# rules across rows compare rows by their ids and dates, which no rule blanks, and come last.
+ROW_RULES = (ranges, diameters, walls, pressures, age, sex)
+ACROSS_ROWS = (repeats,)
+RULES = ROW_RULES + ACROSS_ROWS
 
 
-def _repeated_ids(sid: pd.Series) -> np.ndarray:
+def _repeated_ids(sid: pd.Series) -> tuple[np.ndarray, tuple[np.ndarray, np.ndarray] | None]:
     """True on every row whose identifier (an integer or a text; missing for none) appears on
-    another row too.
+    another row too; and, for text ids that were hashed, each row's code into the distinct ids
+    (so that the findings show them without hashing them again), else None.
 
     Integer ids (``Int64``, as ids written as whole numbers are read) are compared as integers,
     Arrow text as text: a strictly increasing column (the usual export) is seen to hold no repeats
@@ -315,13 +359,14 @@ def _repeated_ids(sid: pd.Series) -> np.ndarray:
     """
     present = sid.notna().to_numpy()
     if isinstance(sid.dtype, pd.Int64Dtype):  # ids read from whole numbers (cells.parse_ids)
-        return _repeated_integers(sid.to_numpy(dtype="int64", na_value=0), present)
+        return _repeated_integers(sid.to_numpy(dtype="int64", na_value=0), present), None
     if isinstance(sid.dtype, pd.StringDtype) and sid.dtype.storage == "pyarrow" and present.all():
         text = pa.chunked_array(pa.array(sid.array)).combine_chunks()
         if len(text) < 2 or pc.all(pc.greater(text[1:], text[:-1])).as_py():  # increasing
-            return np.zeros(len(text), dtype=bool)
-    codes, _ = pd.factorize(sid)  # Arrow's hash for Arrow text; -1 for missing
-    return _seen_twice(codes)
+            return np.zeros(len(text), dtype=bool), None
+    codes, uniques = pd.factorize(sid)  # Arrow's hash for Arrow text; -1 for missing
+    coded = (codes, uniques) if present.all() else None
+    return _seen_twice(codes), coded
 
 
 def _seen_twice(codes: np.ndarray) -> np.ndarray:
@@ -336,16 +381,48 @@ def _seen_twice(codes: np.ndarray) -> np.ndarray:
 def _repeated_pairs(a: pd.Series, b: pd.Series) -> np.ndarray:
     """True on every row whose (a, b) pair, both present, appears on another row too.
 
-    Each column is factorized once and the pair becomes one integer (a's code times the number
-    of b's values, plus b's code), so that one hash of integers finds the repeats; a code of -1
-    (missing) never matches a pair of present values, and rows with one missing are left out.
+    ``a`` is factorized (its one hash) and ``b``, dates, become whole days; the pair becomes one
+    integer (a's code times the span of days, plus the day), and the repeated integers are found
+    by sorting them: no second hash. Rows with either missing are left out.
     """
     ca, _ = pd.factorize(a)
-    cb, ub = pd.factorize(b)
-    have = (ca >= 0) & (cb >= 0)
-    key = ca.astype(np.int64) * (len(ub) + 1) + cb
-    pair, _ = pd.factorize(np.where(have, key, -1), use_na_sentinel=False)
-    return _seen_twice(np.where(have, pair, -1))
+    day, span = _days(b)
+    have = (ca >= 0) & (day >= 0)
+    out = np.zeros(len(ca), dtype=bool)
+    if have.sum() < 2:
+        return out
+    key = ca[have].astype(np.int64) * span + day[have]
+    out[have] = _repeated_values(key)
+    return out
+
+
+def _days(dates: pd.Series) -> tuple[np.ndarray, int]:
+    """Each date as whole days from the earliest (-1 for missing) and the span in days (>= 1); a
+    column that is not dates is factorized instead (its codes, and their count)."""
+    if not pd.api.types.is_datetime64_dtype(dates.dtype):
+        codes, uniques = pd.factorize(dates)
+        return codes, max(len(uniques), 1)
+    v = dates.to_numpy(dtype="datetime64[D]").view(np.int64)
+    missing = np.isnat(dates.to_numpy())
+    if missing.all():
+        return np.full(v.size, -1, dtype=np.int64), 1
+    first = v[~missing].min()
+    day = v - first
+    day[missing] = -1
+    return day, int(day.max()) + 1
+
+
+def _repeated_values(key: np.ndarray) -> np.ndarray:
+    """True where an integer occurs more than once in ``key`` (one sort; the repeated values,
+    usually few, are then looked up)."""
+    s = np.sort(key)
+    same = s[1:] == s[:-1]
+    if not same.any():
+        return np.zeros(key.size, dtype=bool)
+    again = s[1:][same]
+    values = again[np.r_[True, again[1:] != again[:-1]]]
+    at = np.minimum(np.searchsorted(values, key), values.size - 1)
+    return values[at] == key
 
 
 def _repeated_integers(key: np.ndarray, present: np.ndarray) -> np.ndarray:
