@@ -13,3 +13,17 @@ def test_findings_of_the_mixed_corpus_are_unchanged():
     assert list(now.columns) == list(stored.columns)
     assert len(now) == len(stored)
     pd.testing.assert_frame_equal(now, stored, check_dtype=False)
+
+
+def test_threads_change_nothing(monkeypatch):
+    """Columns read in threads and the measures computed in row partitions (forced here on these
+    short lists) give the same findings, in the same order."""
+    from wallstress.analysis import pipeline
+    from wallstress.prepare import mapping
+
+    monkeypatch.setattr(mapping, "PARALLEL_MIN_ROWS", 1)
+    monkeypatch.setattr(pipeline, "PARTITION_MIN_ROWS", 50)
+    monkeypatch.setenv(pipeline.THREADS_ENV, "3")
+    stored = pd.read_csv(GOLDEN, dtype=str, keep_default_na=False)
+    now = findings_of_corpus().reset_index(drop=True)
+    pd.testing.assert_frame_equal(now, stored, check_dtype=False)

@@ -87,16 +87,16 @@ def analyse_with_findings(
     options = options or Options()
     _check_options(options)
     refset = load_set(options.reference)
-    mapped = map_columns(df, options, numbers=numbers)
+    mapped = map_columns(df, options, numbers=numbers, workers=threads())
     labels = {m["field"]: m["source_column"] for m in mapped.mapping}
-    # the checks across rows (repeats: hashing ids) read only ids and dates: they run in a thread
-    # of their own beside the row rules and the measures, and their findings take their place
-    # after the row rules'
-    with ThreadPoolExecutor(1, thread_name_prefix="wallstress-across") as side:
-        across = side.submit(across_rows_parts, mapped.canonical, labels, df)
+    # the checks across rows (repeats: hashing ids) read only ids and dates: they start first, in
+    # the pool, beside the row rules (this thread) and then the measures' partitions, and their
+    # findings take their place after the row rules'
+    with ThreadPoolExecutor(threads(), thread_name_prefix="wallstress") as pool:
+        across = pool.submit(across_rows_parts, mapped.canonical, labels, df)
         canonical, vparts = validate_parts(mapped.canonical, labels, df, across_rows=False)
         canonical.index = pd.RangeIndex(len(df))
-        out, cparts, used = _compute_in_partitions(canonical, options, refset)
+        out, cparts, used = _compute_in_partitions(canonical, options, refset, pool)
         vparts += across.result()
     # every step's findings joined once, in step order (within a row: reader, mapping, validation,
     # measures), sorted by row
@@ -185,29 +185,33 @@ def threads() -> int:
     return max(1, min(cpus, MAX_THREADS))
 
 
-def _partition_bounds(n: int, workers: int) -> list[tuple[int, int]]:
-    """Row ranges [start, stop) of about equal size, each >= PARTITION_MIN_ROWS (one if n is small)."""
-    k = max(1, min(workers, n // PARTITION_MIN_ROWS))
+def _partition_bounds(n: int, parts: int) -> list[tuple[int, int]]:
+    """Row ranges [start, stop) of about equal size, at most ``parts``, each >=
+    PARTITION_MIN_ROWS (one if n is small)."""
+    k = max(1, min(parts, n // PARTITION_MIN_ROWS))
     edges = [n * i // k for i in range(k + 1)]
     return list(zip(edges[:-1], edges[1:], strict=True))
 
 
-def _compute_in_partitions(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, dict]:
-    """:func:`~wallstress.analysis.measures.compute` over row partitions in threads, joined in row order.
+def _compute_in_partitions(
+    c: pd.DataFrame, o: Options, refset, pool: ThreadPoolExecutor
+) -> tuple[dict, list, dict]:
+    """:func:`~wallstress.analysis.measures.compute` over row partitions in ``pool``'s threads,
+    joined in row order.
 
-    The first partition runs in the calling thread. Each output column is joined as soon as its
-    pieces are taken (the pieces are then freed), so the join holds at most one column twice.
+    Two partitions per thread, so that a thread busy with other work (the checks across rows)
+    leaves its share to the others. Each output column is joined as soon as its pieces are taken
+    (the pieces are then freed), so the join holds at most one column twice.
     """
-    bounds = _partition_bounds(len(c), threads())
+    bounds = _partition_bounds(len(c), 2 * threads())
 
     def work(b):
         return compute(c.iloc[b[0] : b[1]], o, refset)
 
     if len(bounds) == 1:
-        return work(bounds[0])
-    with ThreadPoolExecutor(len(bounds) - 1, thread_name_prefix="wallstress") as pool:
-        later = [pool.submit(work, b) for b in bounds[1:]]
-        results = [work(bounds[0])] + [f.result() for f in later]
+        results = [work(bounds[0])]
+    else:
+        results = list(pool.map(work, bounds))
     out: dict[str, object] = {}
     for name in list(results[0][0]):
         pieces = [r[0].pop(name) for r in results]
