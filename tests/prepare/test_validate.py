@@ -111,22 +111,25 @@ def test_repeated_study_ids_whatever_their_form(ids, repeated):
     assert set(f.loc[f["code"] == "duplicate_study_id", "row"]) == repeated
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=300, deadline=None)
 @given(
     st.lists(
         st.tuples(st.one_of(st.none(), st.integers(0, 3)), st.one_of(st.none(), st.integers(0, 3))),
         max_size=15,
-    )
+    ),
+    st.sampled_from(["days", "hours", "text ids"]),
 )
-def test_repeated_pairs_vs_pandas_duplicated(pairs):
+def test_repeated_pairs_vs_pandas_duplicated(pairs, form):
     """Rows whose (patient, date) pair is repeated are those pandas' DataFrame.duplicated
-    (keep=False) marks, among rows with both present (the reference)."""
-    pid = pd.Series([p for p, _ in pairs], dtype="Int64")
+    (keep=False) marks, among rows with both present (the reference); two studies of one day
+    at different times are not a repeat."""
+    if form == "text ids":
+        pid = pd.Series([None if p is None else f"P{p:03d}" for p, _ in pairs], dtype="str")
+    else:
+        pid = pd.Series([p for p, _ in pairs], dtype="Int64")
+    step = pd.Timedelta(hours=6) if form == "hours" else pd.Timedelta(days=1)
     day = pd.Series(
-        [
-            pd.NaT if d is None else pd.Timestamp("2020-01-01") + pd.Timedelta(days=d)
-            for _, d in pairs
-        ],
+        [pd.NaT if d is None else pd.Timestamp("2020-01-01") + d * step for _, d in pairs],
         dtype="datetime64[ns]",
     )
     key = pd.DataFrame({"p": pid, "d": day})

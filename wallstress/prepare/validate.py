@@ -383,12 +383,16 @@ def _repeated_pairs(a: pd.Series, b: pd.Series) -> np.ndarray:
 
     ``a`` is factorized (its one hash) and ``b``, dates, become whole days; the pair becomes one
     integer (a's code times the span of days, plus the day), and the repeated integers are found
-    by sorting them: no second hash. Rows with either missing are left out.
+    by sorting them: no second hash. Rows with either missing, or whose ``a`` is on no other row
+    (most of a lab's list), are left out before the sort.
     """
     ca, _ = pd.factorize(a)
     day, span = _days(b)
     have = (ca >= 0) & (day >= 0)
     out = np.zeros(len(ca), dtype=bool)
+    if have.sum() < 2:
+        return out
+    have &= _seen_twice(np.where(have, ca, -1))  # a patient seen once has no repeated pair
     if have.sum() < 2:
         return out
     key = ca[have].astype(np.int64) * span + day[have]
@@ -397,19 +401,24 @@ def _repeated_pairs(a: pd.Series, b: pd.Series) -> np.ndarray:
 
 
 def _days(dates: pd.Series) -> tuple[np.ndarray, int]:
-    """Each date as whole days from the earliest (-1 for missing) and the span in days (>= 1); a
-    column that is not dates is factorized instead (its codes, and their count)."""
-    if not pd.api.types.is_datetime64_dtype(dates.dtype):
-        codes, uniques = pd.factorize(dates)
-        return codes, max(len(uniques), 1)
-    v = dates.to_numpy(dtype="datetime64[D]").view(np.int64)
-    missing = np.isnat(dates.to_numpy())
-    if missing.all():
-        return np.full(v.size, -1, dtype=np.int64), 1
-    first = v[~missing].min()
-    day = v - first
-    day[missing] = -1
-    return day, int(day.max()) + 1
+    """Each date as whole days from the earliest (-1 for missing) and the span in days (>= 1),
+    when every date is at midnight (the usual list); otherwise (times of day, or not dates) the
+    values are factorized: their codes and how many there are. Either way, equal codes are equal
+    values."""
+    if pd.api.types.is_datetime64_dtype(dates.dtype):
+        v = dates.to_numpy(dtype="datetime64[ns]")
+        missing = np.isnat(v)
+        ns = v.view(np.int64)
+        if missing.all():
+            return np.full(v.size, -1, dtype=np.int64), 1
+        per_day = 86_400 * 10**9
+        if not (ns[~missing] % per_day).any():
+            day = ns // per_day
+            day -= day[~missing].min()
+            day[missing] = -1
+            return day, int(day.max()) + 1
+    codes, uniques = pd.factorize(dates)
+    return codes, max(len(uniques), 1)
 
 
 def _repeated_values(key: np.ndarray) -> np.ndarray:
