@@ -192,7 +192,7 @@ def test_row_partitions_on_threads_equal_one_pass(monkeypatch):
     one = wallstress.analyse_with_findings(df)
     monkeypatch.setattr(pipeline, "PARTITION_MIN_ROWS", 20)
     monkeypatch.setenv("WALLSTRESS_THREADS", "3")
-    assert len(pipeline._partition_bounds(len(df), 2 * pipeline.threads())) == 3
+    assert len(pipeline._partition_bounds(len(df), pipeline.threads())) == 3
     three = wallstress.analyse_with_findings(df)
     pd.testing.assert_frame_equal(one.table, three.table)
     # the same findings in the same order (a Categorical's category order may differ)
