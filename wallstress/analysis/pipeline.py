@@ -23,7 +23,7 @@ from wallstress.analysis.result import Analysis
 from wallstress.options import Options
 from wallstress.prepare.mapping import map_columns
 from wallstress.prepare.rows import non_study_rows, not_study_finding
-from wallstress.prepare.validate import across_rows_parts, validate_parts
+from wallstress.prepare.validate import ACROSS_ROWS, across_rows_parts, validate_parts
 from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.schema.units import UNIT_CHOICES
 from wallstress.schema.vocabulary import METHOD_CHOICES, OUT
@@ -90,14 +90,18 @@ def analyse_with_findings(
     mapped = map_columns(df, options, numbers=numbers, workers=threads())
     labels = {m["field"]: m["source_column"] for m in mapped.mapping}
     # the checks across rows (repeats: hashing ids) read only ids and dates: they start first, in
-    # the pool, beside the row rules (this thread) and then the measures' partitions; their
-    # findings take their place after the row rules'
+    # the pool, each on its own, beside the row rules (this thread) and then the measures'
+    # partitions; their findings take their place after the row rules'
     with ThreadPoolExecutor(threads(), thread_name_prefix="wallstress") as pool:
-        across = pool.submit(across_rows_parts, mapped.canonical, labels, df)
+        across = [
+            pool.submit(across_rows_parts, mapped.canonical, labels, df, (rule,))
+            for rule in ACROSS_ROWS
+        ]
         canonical, vparts = validate_parts(mapped.canonical, labels, df, across_rows=False)
         canonical.index = pd.RangeIndex(len(df))
         out, cparts, used = _compute_in_partitions(canonical, options, refset, pool)
-        vparts += across.result()
+        for rule_parts in across:
+            vparts += rule_parts.result()
     # every step's findings joined once, in step order (within a row: reader, mapping, validation,
     # measures), sorted by row
     missing = missing_inputs(mapped.canonical.columns, mapped.unmapped)
@@ -196,8 +200,8 @@ def _partition_bounds(n: int, parts: int) -> list[tuple[int, int]]:
 def _compute_in_partitions(
     c: pd.DataFrame, o: Options, refset, pool: ThreadPoolExecutor
 ) -> tuple[dict, list, dict]:
-    """:func:`~wallstress.analysis.measures.compute` over row partitions in ``pool``'s threads,
-    joined in row order.
+    """:func:`~wallstress.analysis.measures.compute` over row partitions, the first in the
+    calling thread and the others in ``pool``'s threads, joined in row order.
 
     One partition per thread (two per thread measured no faster, 10^6 rows on 2 cores). Each
     output column is joined as soon as its pieces are taken (the pieces are then freed), so the
@@ -208,10 +212,8 @@ def _compute_in_partitions(
     def work(b):
         return compute(c.iloc[b[0] : b[1]], o, refset)
 
-    if len(bounds) == 1:
-        results = [work(bounds[0])]
-    else:
-        results = list(pool.map(work, bounds))
+    later = [pool.submit(work, b) for b in bounds[1:]]  # the first partition in this thread
+    results = [work(bounds[0])] + [f.result() for f in later]
     out: dict[str, object] = {}
     for name in list(results[0][0]):
         pieces = [r[0].pop(name) for r in results]

@@ -149,11 +149,15 @@ def validate_parts(
 
 
 def across_rows_parts(
-    canonical: pd.DataFrame, labels: dict[str, str] | None = None, raw: pd.DataFrame | None = None
+    canonical: pd.DataFrame,
+    labels: dict[str, str] | None = None,
+    raw: pd.DataFrame | None = None,
+    rules: tuple | None = None,
 ) -> list[pd.DataFrame]:
-    """The findings of :data:`ACROSS_ROWS` alone (the last rules of :data:`RULES`)."""
+    """The findings of ``rules`` (of :data:`ACROSS_ROWS`, the last rules of :data:`RULES`)
+    alone; each reads ids and dates only, so that each may run in a thread of its own."""
     check = _Check(canonical, labels or {}, raw, numbers=False)
-    for rule in ACROSS_ROWS:
+    for rule in ACROSS_ROWS if rules is None else rules:
         rule(check)
     return check.parts
 
@@ -315,8 +319,8 @@ def sex(check: _Check) -> None:
     )
 
 
-def repeats(check: _Check) -> None:
-    """The same patient on the same date, or the same study id, on more than one row."""
+def repeated_visits(check: _Check) -> None:
+    """The same patient on the same date on more than one row."""
     c = check.canonical
     if "patient_id" in c.columns and "study_date" in c.columns:
         check.rule(
@@ -326,6 +330,11 @@ def repeats(check: _Check) -> None:
             "Another study of the same patient on the same date: check for a duplicate export.",
             "study_date",
         )
+
+
+def repeated_study_ids(check: _Check) -> None:
+    """The same study id on more than one row."""
+    c = check.canonical
     if "study_id" in c.columns:
         sid = c["study_id"]
         dup, coded = _repeated_ids(sid)
@@ -344,7 +353,7 @@ def repeats(check: _Check) -> None:
 # In order (a rule sees the values the rules before it blanked). A row rule reads its own row; the
 # rules across rows compare rows by their ids and dates, which no rule blanks, and come last.
 ROW_RULES = (ranges, diameters, walls, pressures, age, sex)
-ACROSS_ROWS = (repeats,)
+ACROSS_ROWS = (repeated_visits, repeated_study_ids)
 RULES = ROW_RULES + ACROSS_ROWS
 
 
