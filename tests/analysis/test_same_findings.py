@@ -27,3 +27,22 @@ def test_threads_change_nothing(monkeypatch):
     stored = pd.read_csv(GOLDEN, dtype=str, keep_default_na=False)
     now = findings_of_corpus().reset_index(drop=True)
     pd.testing.assert_frame_equal(now, stored, check_dtype=False)
+
+
+def test_one_thread_means_one_thread(monkeypatch):
+    """WALLSTRESS_THREADS=1 (the README's advice inside a dask worker) starts no thread, however
+    long the list (forced here by lowering the thresholds), and gives the same findings."""
+    from wallstress.analysis import pipeline
+    from wallstress.prepare import mapping
+
+    def refuse(*args, **kwargs):
+        raise AssertionError("a thread pool was started with WALLSTRESS_THREADS=1")
+
+    monkeypatch.setattr(mapping, "PARALLEL_MIN_ROWS", 1)
+    monkeypatch.setattr(pipeline, "PARTITION_MIN_ROWS", 1)
+    monkeypatch.setattr(mapping, "ThreadPoolExecutor", refuse)
+    monkeypatch.setattr(pipeline, "ThreadPoolExecutor", refuse)
+    monkeypatch.setenv(pipeline.THREADS_ENV, "1")
+    stored = pd.read_csv(GOLDEN, dtype=str, keep_default_na=False)
+    now = findings_of_corpus().reset_index(drop=True)
+    pd.testing.assert_frame_equal(now, stored, check_dtype=False)

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import os
 from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
 
 import numpy as np
 import pandas as pd
@@ -89,19 +90,19 @@ def analyse_with_findings(
     refset = load_set(options.reference)
     mapped = map_columns(df, options, numbers=numbers, workers=threads())
     labels = {m["field"]: m["source_column"] for m in mapped.mapping}
-    # the checks across rows (repeats: hashing ids) read only ids and dates: they start first, in
-    # the pool, each on its own, beside the row rules (this thread) and then the measures'
-    # partitions; their findings take their place after the row rules'
-    with ThreadPoolExecutor(threads(), thread_name_prefix="wallstress") as pool:
+    # the checks across rows (repeats: hashing ids) read only ids and dates: each is started
+    # first, beside the row rules (this thread) and the measures' partitions; their findings take
+    # their place after those of the row rules
+    with _helpers(threads() - 1) as pool:
         across = [
-            pool.submit(across_rows_parts, mapped.canonical, labels, df, (rule,))
+            _start(pool, across_rows_parts, mapped.canonical, labels, df, (rule,))
             for rule in ACROSS_ROWS
         ]
         canonical, vparts = validate_parts(mapped.canonical, labels, df, across_rows=False)
         canonical.index = pd.RangeIndex(len(df))
         out, cparts, used = _compute_in_partitions(canonical, options, refset, pool)
-        for rule_parts in across:
-            vparts += rule_parts.result()
+        for task in across:
+            vparts += _finish(task)
     # every step's findings joined once, in step order (within a row: reader, mapping, validation,
     # measures), sorted by row
     missing = missing_inputs(mapped.canonical.columns, mapped.unmapped)
@@ -197,11 +198,37 @@ def _partition_bounds(n: int, parts: int) -> list[tuple[int, int]]:
     return list(zip(edges[:-1], edges[1:], strict=True))
 
 
+@contextmanager
+def _helpers(n: int):
+    """A pool of ``n`` threads beside the calling one (None for none: everything runs in the
+    calling thread), so that at most :func:`threads` threads work at once."""
+    if n < 1:
+        yield None
+        return
+    with ThreadPoolExecutor(n, thread_name_prefix="wallstress") as pool:
+        yield pool
+
+
+def _start(pool: ThreadPoolExecutor | None, fn, *args) -> tuple:
+    """A task handed to the pool, to be taken back by :func:`_finish`."""
+    return (None if pool is None else pool.submit(fn, *args)), fn, args
+
+
+def _finish(task: tuple):
+    """A task's result: a task no thread of the pool has started yet is run in the calling
+    thread (which would otherwise only wait), so the work is shared however long each part
+    takes."""
+    future, fn, args = task
+    if future is None or future.cancel():
+        return fn(*args)
+    return future.result()
+
+
 def _compute_in_partitions(
-    c: pd.DataFrame, o: Options, refset, pool: ThreadPoolExecutor
+    c: pd.DataFrame, o: Options, refset, pool: ThreadPoolExecutor | None
 ) -> tuple[dict, list, dict]:
     """:func:`~wallstress.analysis.measures.compute` over row partitions, the first in the
-    calling thread and the others in ``pool``'s threads, joined in row order.
+    calling thread and the others handed to ``pool`` (:func:`_start`), joined in row order.
 
     One partition per thread (two per thread measured no faster, 10^6 rows on 2 cores). Each
     output column is joined as soon as its pieces are taken (the pieces are then freed), so the
@@ -212,8 +239,8 @@ def _compute_in_partitions(
     def work(b):
         return compute(c.iloc[b[0] : b[1]], o, refset)
 
-    later = [pool.submit(work, b) for b in bounds[1:]]  # the first partition in this thread
-    results = [work(bounds[0])] + [f.result() for f in later]
+    later = [_start(pool, work, b) for b in bounds[1:]]  # the first partition in this thread
+    results = [work(bounds[0])] + [_finish(task) for task in later]
     out: dict[str, object] = {}
     for name in list(results[0][0]):
         pieces = [r[0].pop(name) for r in results]
