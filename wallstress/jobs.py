@@ -124,6 +124,10 @@ def analyse_file(
         )
         _source_methods(analysis, study)
         require_lv_dimensions(analysis, path)
+        if not (in_place or out_path.suffix.lower() in (".xlsx", ".xlsm")):
+            # the parsed numbers serve a workbook's number cells only; those the analysis does not
+            # hold (a column it blanked values of has its own copy) are freed before writing
+            study = replace(study, numbers={})
         bar.step("measures computed")
         written = write_results(
             analysis, out_path, study, in_place=in_place, escape_formulas=escape_formulas

@@ -58,8 +58,13 @@ def formula_like_mask(values) -> np.ndarray:
     starts = text.startswith(FORMULA_PREFIXES).fillna(False).to_numpy(dtype=bool)
     if not starts.any():
         return starts
-    number = text.fullmatch(_PLAIN_NUMBER).fillna(False).to_numpy(dtype=bool)
-    return starts & ~number
+    # only the cells that start like a formula are matched against a number (a few typos in a
+    # column of 10^6 numbers must not cost a regex call per cell)
+    rows = np.flatnonzero(starts)
+    number = col.iloc[rows].str.fullmatch(_PLAIN_NUMBER).fillna(False).to_numpy(dtype=bool)
+    out = starts.copy()  # the mask may be a read-only view of Arrow's buffer
+    out[rows[number]] = False
+    return out
 
 
 def hyperlink_like_mask(values) -> np.ndarray:
