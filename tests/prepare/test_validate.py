@@ -135,3 +135,26 @@ def test_repeated_pairs_vs_pandas_duplicated(pairs, form):
     key = pd.DataFrame({"p": pid, "d": day})
     want = key.duplicated(keep=False).to_numpy() & key.notna().all(axis=1).to_numpy()
     assert _repeated_pairs(pid, day).tolist() == want.tolist()
+
+
+@pytest.mark.parametrize(
+    "ids, repeated, shown",
+    [
+        # written with spaces: the same id (trimmed), each shown as the user wrote it
+        ([" A1", "A1", "B2", "A1 "], {0, 1, 3}, [" A1", "A1", "A1 "]),
+        (["A1", "B2", "A1", "C3"], {0, 2}, ["A1", "A1"]),
+        (["A1", None, "A1", ""], {0, 2}, ["A1", "A1"]),  # missing ids are no repeat
+        (["0042", "42", "0042"], {0, 2}, ["0042", "0042"]),  # leading zeros kept
+    ],
+)
+def test_repeated_study_ids_show_the_cells_as_written(ids, repeated, shown):
+    """A repeated study id's finding shows each cell exactly as written, through the codes of
+    the repeat check or, where spaces surround an id, the cell itself (the user's data is
+    sacred: common practice, no source)."""
+    import wallstress
+
+    df = pd.DataFrame({"Study ID": pd.Series(ids, dtype="str"), "sex": ["F"] * len(ids)})
+    f = wallstress.analyse_with_findings(df).findings
+    dup = f[f["code"] == "duplicate_study_id"]
+    assert set(dup["row"]) == repeated
+    assert dup.sort_values("row")["value"].astype(str).tolist() == shown
