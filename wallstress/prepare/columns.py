@@ -50,13 +50,12 @@ def read_column(raw: pd.DataFrame, numbers: dict, options: Options, job: tuple) 
         assumed = probs.pop("date_ambiguous_assumed")
         if assumed.any():  # the column never shows its order: one finding for the column
             parts.append(
-                fnd.make(
-                    [-1],
-                    code="date_order_assumed",
-                    severity="warning",
-                    column=header,
-                    field=fname,
-                    message=f"No date in column {header!r} shows whether it is day-first or "
+                column_finding(
+                    "date_order_assumed",
+                    "warning",
+                    header,
+                    fname,
+                    f"No date in column {header!r} shows whether it is day-first or "
                     f"month-first ({int(assumed.sum())} could be either); they were read "
                     "day-first (04/03/2021 = 4 March). If they are month-first, run again with "
                     "--date-order mdy; write dates as YYYY-MM-DD to be sure.",

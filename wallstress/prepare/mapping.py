@@ -7,9 +7,10 @@ recording how each unit was known: from the canonical name (``lvidd_cm``), the h
 (``"LVIDd (mm)"``), the ``units`` option, or inferred from the values (with a note saying how to state
 it). Nothing here raises on a bad cell: it becomes NaN with a finding naming the original value.
 
-This module maps columns and converts units; header matching lives in :mod:`wallstress.schema.headers`,
-cell parsing in :mod:`wallstress.prepare.cells` (numbers, sex, ids) and :mod:`wallstress.prepare.dates`
-(dates).
+This module decides which column is which field (and reads "128/82" pressure pairs); each mapped
+column is read into its field, units converted, by :mod:`wallstress.prepare.columns`. Header
+matching lives in :mod:`wallstress.schema.headers`, cell parsing in :mod:`wallstress.prepare.cells`
+(numbers, sex, ids) and :mod:`wallstress.prepare.dates` (dates).
 
 References
 ----------
