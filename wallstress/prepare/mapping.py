@@ -31,18 +31,11 @@ import pandas as pd
 from wallstress import findings as fnd
 from wallstress.errors import InputError
 from wallstress.options import Options
-from wallstress.prepare.cells import (
-    parse_pressure_pairs,
-)
+from wallstress.prepare.cells import parse_pressure_pairs
 from wallstress.prepare.columns import column_finding, read_column
-from wallstress.prepare.dates import (
-    DATE_ORDERS,
-)
+from wallstress.prepare.dates import DATE_ORDERS
 from wallstress.schema import fields as schema
-from wallstress.schema.headers import (
-    check_columns_option,
-    match_header,
-)
+from wallstress.schema.headers import check_columns_option, match_header
 from wallstress.schema.units import UNIT_CHOICES
 
 UNIT_BASES: tuple[str, ...] = ("canonical name", "header", "option", "inferred")
