@@ -30,7 +30,11 @@ def column_finding(code: str, severity: str, column: str, field: str, message: s
 
 
 def read_column(raw: pd.DataFrame, numbers: dict, options: Options, job: tuple) -> tuple:
-    """One mapped column read into its canonical field: (values, mapping entry, findings)."""
+    """One mapped column read into its canonical field: (values, mapping entry, findings).
+
+    ``job`` is as :func:`~wallstress.prepare.mapping.map_columns` lists it: (findings before it,
+    position, column, header, field name, the field's schema entry, how the header matched).
+    """
     _, j, col, header, fname, fld, how = job
     s = raw.iloc[:, j].reset_index(drop=True)
     parsed = numbers.get(col)
