@@ -255,3 +255,19 @@ def test_validate_leaves_input_alone_and_output_writable():
     cleaned.loc[0, "lvids_cm"] = 2.5
     cleaned.loc[0, "lvidd_cm"] = 4.5
     pd.testing.assert_frame_equal(given_frame, before)
+
+
+def test_worst_severity_per_row():
+    """A row's worst finding ranks error over warning over note; a row without any, or a finding
+    about a whole column (row -1), gives -1 (common practice, no source)."""
+    f = fnd.concat(
+        [
+            fnd.make([0, 2], code="a", severity="note", message="m"),
+            fnd.make([2, 3], code="b", severity="error", message="m"),
+            fnd.make([2, 0], code="c", severity="warning", message="m"),
+            fnd.make([-1], code="d", severity="error", message="m"),
+        ]
+    )
+    assert fnd.worst_severity(f, 5).tolist() == [1, -1, 2, 2, -1]
+    cat = fnd.concat([fnd.make([1], code="b", severity="warning", message="m")], categorical=True)
+    assert fnd.worst_severity(cat, 2).tolist() == [-1, 1]

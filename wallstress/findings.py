@@ -36,6 +36,7 @@ SEVERITIES: tuple[str, ...] = ("error", "warning", "note")
 # warning < error) so that every table shares them and a rank mapped from them stays ordered.
 TEXT_COLUMNS: tuple[str, ...] = FINDING_COLUMNS[1:]
 SEVERITY_DTYPE = pd.CategoricalDtype(("note", "warning", "error"), ordered=True)
+SEVERITY_RANK: dict[str, int] = {name: i for i, name in enumerate(SEVERITY_DTYPE.categories)}
 
 
 def _categorical(codes: np.ndarray, categories, dtype=None) -> pd.Categorical:
@@ -355,6 +356,19 @@ def as_text(findings: pd.DataFrame) -> pd.DataFrame:
         else:
             cols[c] = s.to_numpy() if c == "row" else s.array
     return pd.DataFrame(cols, index=findings.index)
+
+
+def worst_severity(findings: pd.DataFrame, n_rows: int) -> np.ndarray:
+    """Each row's worst finding as its :data:`SEVERITY_RANK` (note 0, warning 1, error 2), -1 for
+    a row without one; findings about a column or the file (row -1) are left out. One pass per
+    severity, the worse ones written last: no group-by."""
+    worst = np.full(n_rows, -1, dtype=np.int8)
+    rows = findings["row"].to_numpy(dtype="int64")
+    sev = findings["severity"].astype(str).to_numpy()
+    inside = (rows >= 0) & (rows < n_rows)
+    for name, rank in SEVERITY_RANK.items():  # in increasing order of severity
+        worst[rows[inside & (sev == name)]] = rank
+    return worst
 
 
 def flags_per_row(findings: pd.DataFrame, n_rows: int) -> pd.Series:

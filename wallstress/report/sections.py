@@ -22,6 +22,7 @@ from wallstress.figures.common import (
 )
 from wallstress.figures.geometry_plane import geometry_plane
 from wallstress.figures.stress_shortening import line_values, stress_shortening
+from wallstress.findings import SEVERITY_RANK, worst_severity
 from wallstress.report.html import (
     COLUMN_LABELS,
     _e,
@@ -49,9 +50,6 @@ UNVERIFIED_NOTE = (
 )
 
 
-SEVERITY_RANK: dict[str, int] = {"note": 0, "warning": 1, "error": 2}
-
-
 CUTOFF_MEASURES: tuple[str, ...] = (
     OUT.lvmi_bsa_g_m2,
     OUT.lvmi_h27_g_m2_7,
@@ -68,9 +66,12 @@ MODELS: tuple[str, ...] = ("reproducibility", "midwall_stress_line", "mass_predi
 
 
 def _row_rank(rowwise: pd.DataFrame) -> pd.Series:
-    """Each row's highest severity (note 0, warning 1, error 2), by row, vectorised."""
-    rank = rowwise["severity"].astype(str).map(SEVERITY_RANK).fillna(0).astype(int)
-    return rank.groupby(rowwise["row"].to_numpy()).max()
+    """Each row's highest severity (note 0, warning 1, error 2), indexed by the rows that have a
+    finding (:func:`wallstress.findings.worst_severity`)."""
+    n = int(rowwise["row"].max()) + 1 if len(rowwise) else 0
+    worst = worst_severity(rowwise, n)
+    have = np.flatnonzero(worst >= 0)
+    return pd.Series(worst[have].astype(int), index=have)
 
 
 def _summary_section(analysis, frame: pd.DataFrame, findings: pd.DataFrame) -> str:

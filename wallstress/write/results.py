@@ -166,17 +166,6 @@ def key_measures(analysis) -> pd.DataFrame:
     return pd.DataFrame(cols)
 
 
-def _worst_severity(findings: pd.DataFrame, n_rows: int) -> np.ndarray:
-    """Each row's worst finding: "error", "warning" or "" (notes do not count)."""
-    rank = np.zeros(n_rows, dtype=np.int8)
-    rows = findings["row"].to_numpy(dtype="int64")
-    sev = findings["severity"].astype(str).to_numpy()
-    for level, name in ((1, "warning"), (2, "error")):
-        hit = rows[(sev == name) & (rows >= 0) & (rows < n_rows)]
-        rank[hit] = np.maximum(rank[hit], level)
-    return np.array(["", "warning", "error"], dtype=object)[rank]
-
-
 def with_marks(key: pd.DataFrame, analysis) -> tuple[pd.DataFrame, tuple]:
     """The key-measures table with its ``check`` column (the row's worst finding) and a legend,
     and the sheet's conditional marks: rows with an error; LVMI and RWT beyond the limits of the
@@ -186,7 +175,9 @@ def with_marks(key: pd.DataFrame, analysis) -> tuple[pd.DataFrame, tuple]:
 
     key = key.copy()
     n = len(key)
-    key["check"] = _worst_severity(analysis.findings, n)
+    # the row's worst finding; a note does not count
+    worst = _findings.worst_severity(analysis.findings, n)
+    key["check"] = np.array(["", "", "warning", "error"], dtype=object)[worst + 1]
     letter = {c: col_letters(j) for j, c in enumerate(key.columns)}
     check, last = letter["check"], n + 1
     marks = [(f"A2:{check}{last}", f'${check}2="error"', "error")]
