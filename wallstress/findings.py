@@ -37,6 +37,9 @@ SEVERITIES: tuple[str, ...] = ("error", "warning", "note")
 TEXT_COLUMNS: tuple[str, ...] = FINDING_COLUMNS[1:]
 SEVERITY_DTYPE = pd.CategoricalDtype(("note", "warning", "error"), ordered=True)
 SEVERITY_RANK: dict[str, int] = {name: i for i, name in enumerate(SEVERITY_DTYPE.categories)}
+# a part of a text column with more distinct texts than this, and most of the column's, keeps its
+# categories as they are when the parts are joined (:func:`_union_into_big`)
+BIG_PART_CATEGORIES = 4096
 
 
 def _categorical(codes: np.ndarray, categories, dtype=None) -> pd.Categorical:
@@ -278,6 +281,9 @@ def _union(cats: list[pd.Categorical], column: str) -> pd.Categorical:
     if column == "severity":  # one fixed dtype for every part
         return union_categoricals(cats)
     sizes = [len(c.categories) for c in cats]
+    big = int(np.argmax(sizes))
+    if sizes[big] > BIG_PART_CATEGORIES and sizes[big] > 2 * (sum(sizes) - sizes[big]):
+        return _union_into_big(cats, big)
     every = np.concatenate([c.categories.to_numpy(dtype=object) for c in cats])
     where, union = pd.factorize(every)
     codes = []
@@ -286,6 +292,30 @@ def _union(cats: list[pd.Categorical], column: str) -> pd.Categorical:
         move = np.append(where[start : start + size], -1)  # code -1 (missing) stays -1
         codes.append(move[cat.codes])
         start += size
+    dtype = _distinct_dtype(pd.Index(union, dtype=object))
+    return _categorical(np.concatenate(codes), union, dtype)
+
+
+def _union_into_big(cats: list[pd.Categorical], big: int) -> pd.Categorical:
+    """:func:`_union` where one part (``big``: e.g. the ids of 10^6 repeated studies) holds most
+    of the distinct texts: only the other parts' texts are hashed, the big part's are looked up
+    in them (a small table) and kept as they are. Categories: the other parts' texts (in order
+    of first appearance), then the big part's that are not among them."""
+    others = [c for i, c in enumerate(cats) if i != big]
+    sizes = [len(c.categories) for c in others]
+    every = np.concatenate([c.categories.to_numpy(dtype=object) for c in others])
+    where, small = pd.factorize(every)
+    big_texts = cats[big].categories.to_numpy(dtype=object)
+    # -1: only in the big part (both Index of object: no conversion to Arrow text and back)
+    found = pd.Index(small, dtype=object).get_indexer(pd.Index(big_texts, dtype=object))
+    new = found < 0
+    move_big = np.where(new, len(small) + np.cumsum(new) - 1, found)
+    moves = iter(np.split(where, np.cumsum(sizes)[:-1]))
+    codes = []
+    for i, cat in enumerate(cats):
+        move = move_big if i == big else next(moves)
+        codes.append(np.append(move, -1)[cat.codes])  # code -1 (missing) stays -1
+    union = np.concatenate([np.asarray(small, dtype=object), big_texts[new]])
     dtype = _distinct_dtype(pd.Index(union, dtype=object))
     return _categorical(np.concatenate(codes), union, dtype)
 

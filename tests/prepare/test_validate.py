@@ -9,7 +9,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from wallstress.prepare.mapping import map_columns
-from wallstress.prepare.validate import _repeated_pairs, validate
+from wallstress.prepare.repeats import repeated_pairs
+from wallstress.prepare.validate import validate
 
 
 def _codes(findings, row):
@@ -134,7 +135,7 @@ def test_repeated_pairs_vs_pandas_duplicated(pairs, form):
     )
     key = pd.DataFrame({"p": pid, "d": day})
     want = key.duplicated(keep=False).to_numpy() & key.notna().all(axis=1).to_numpy()
-    assert _repeated_pairs(pid, day).tolist() == want.tolist()
+    assert repeated_pairs(pid, day).tolist() == want.tolist()
 
 
 @pytest.mark.parametrize(

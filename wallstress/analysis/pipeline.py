@@ -7,6 +7,7 @@ the canonical copy; the result is the user's columns, unchanged and in order, fo
 from __future__ import annotations
 
 import os
+import threading
 from concurrent.futures import ThreadPoolExecutor
 from contextlib import contextmanager
 
@@ -35,6 +36,7 @@ from wallstress.schema.vocabulary import METHOD_CHOICES, OUT
 # at least PARTITION_MIN_ROWS rows (below that the threads cost more than they save); the number of
 # threads is the CPUs this process may use, at most MAX_THREADS, or WALLSTRESS_THREADS if set.
 PARTITION_MIN_ROWS = 250_000
+PARTITIONS_PER_THREAD = 2
 MAX_THREADS = 8
 THREADS_ENV = "WALLSTRESS_THREADS"
 
@@ -214,6 +216,20 @@ def _start(pool: ThreadPoolExecutor | None, fn, *args) -> tuple:
     return (None if pool is None else pool.submit(fn, *args)), fn, args
 
 
+def _finish_all(tasks: list[tuple]) -> list:
+    """The results of ``tasks``, in order: the calling thread first runs every task no thread
+    has started yet, then waits for the others."""
+    results: list = [None] * len(tasks)
+    ran = [False] * len(tasks)
+    for i, (future, fn, args) in enumerate(tasks):
+        if future is None or future.cancel():
+            results[i], ran[i] = fn(*args), True
+    for i, (future, _, _) in enumerate(tasks):
+        if not ran[i]:
+            results[i] = future.result()
+    return results
+
+
 def _finish(task: tuple):
     """A task's result: a task no thread of the pool has started yet is run in the calling
     thread (which would otherwise only wait), so the work is shared however long each part
@@ -230,21 +246,40 @@ def _compute_in_partitions(
     """:func:`~wallstress.analysis.measures.compute` over row partitions, the first in the
     calling thread and the others handed to ``pool`` (:func:`_start`), joined in row order.
 
-    One partition per thread (two per thread measured no faster, 10^6 rows on 2 cores). Each
-    output column is joined as soon as its pieces are taken (the pieces are then freed), so the
-    join holds at most one column twice.
+    ``PARTITIONS_PER_THREAD`` partitions per thread, so that a thread freed early (the checks
+    across rows take less time than the row rules) takes the ones left. Each partition writes
+    its number columns into the whole table's arrays as soon as it is computed (in its own
+    thread: no join of ~25 columns of 10^6 rows at the end, and its pieces are freed at once);
+    the Categoricals (one byte per row) are joined after.
     """
-    bounds = _partition_bounds(len(c), threads())
+    n = len(c)
+    bounds = _partition_bounds(n, threads() * PARTITIONS_PER_THREAD)
+    numbers: dict[str, np.ndarray] = {}
+    lock = threading.Lock()
 
     def work(b):
-        return compute(c.iloc[b[0] : b[1]], o, refset)
+        out, parts, used = compute(c.iloc[b[0] : b[1]], o, refset)
+        for name, piece in out.items():
+            if isinstance(piece, np.ndarray) and piece.dtype == np.float64:
+                with lock:
+                    whole = numbers.get(name)
+                    if whole is None:
+                        whole = numbers[name] = np.empty(n, dtype=np.float64)
+                whole[b[0] : b[1]] = piece
+                out[name] = None  # written
+        return out, parts, used
 
     later = [_start(pool, work, b) for b in bounds[1:]]  # the first partition in this thread
-    results = [work(bounds[0])] + [_finish(task) for task in later]
+    results = [work(bounds[0]), *_finish_all(later)]
     out: dict[str, object] = {}
     for name in list(results[0][0]):
         pieces = [r[0].pop(name) for r in results]
-        if isinstance(pieces[0], pd.Categorical):  # same categories: the codes are joined
+        if any(p is None for p in pieces):  # written into ``numbers`` (by every partition, or
+            for (start, stop), p in zip(bounds, pieces, strict=True):  # by most: the rest now)
+                if p is not None:
+                    numbers[name][start:stop] = p
+            out[name] = numbers.pop(name)
+        elif isinstance(pieces[0], pd.Categorical):  # same categories: the codes are joined
             out[name] = union_categoricals(pieces)
         else:
             out[name] = np.concatenate(pieces)
