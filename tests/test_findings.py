@@ -14,7 +14,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from wallstress import findings as fnd
-from wallstress.analysis import classify
+from wallstress.analysis import classify, flags
 from wallstress.analysis.references import load_set
 from wallstress.prepare.cells import parse_sex
 from wallstress.prepare.validate import validate
@@ -176,10 +176,29 @@ def test_flag_codes_equal_a_python_loop(seed, n_parts):
     practice, no source)."""
     for categorical in (True, False):
         f = fnd.concat(_random_parts(seed, n_parts), categorical=categorical)
-        codes, texts = fnd.flag_codes(f, 30)
+        codes, texts = flags.flag_codes(f, 30)
         assert texts[0] == ""
         assert [texts[i] for i in codes] == _flags_by_loop(f, 30)
-        assert fnd.flags_per_row(f, 30).tolist() == _flags_by_loop(f, 30)
+        assert flags.flags_per_row(f, 30).tolist() == _flags_by_loop(f, 30)
+
+
+@settings(max_examples=30, deadline=None)
+@given(st.integers(0, 10_000), st.integers(1, 7))
+def test_flag_codes_of_codes_in_step_order_equal_a_python_loop(seed, n_parts):
+    """Each part with a code of its own (as each pipeline step has): the codes of every row come
+    in one order, the one-bit-per-code path is taken, and the flags are those of the
+    same reference (common practice, no source)."""
+    parts = _random_parts(seed, n_parts)
+    for i, p in enumerate(parts):
+        p["code"] = pd.Categorical([f"step_{i}"] * len(p))
+    f = fnd.concat(parts, categorical=True)
+    rows = f["row"].to_numpy()
+    inside = rows >= 0
+    if inside.any():
+        code = f["code"].array
+        assert flags._flags_as_code_sets(rows[inside], code.codes[inside], code.categories)
+    codes, texts = flags.flag_codes(f, 30)
+    assert [texts[i] for i in codes] == _flags_by_loop(f, 30)
 
 
 def test_flag_codes_with_many_codes_per_row_equal_a_python_loop():
@@ -197,7 +216,7 @@ def test_flag_codes_with_many_codes_per_row_equal_a_python_loop():
     ]
     parts.append(fnd.make(np.arange(12), code="c0", severity="note", message="again"))
     f = fnd.concat(parts, categorical=True)
-    codes, texts = fnd.flag_codes(f, 12)
+    codes, texts = flags.flag_codes(f, 12)
     assert max(t.count(";") for t in texts) + 1 > 62 / np.log2(32)  # wide enough for that path
     assert [texts[i] for i in codes] == _flags_by_loop(f, 12)
 
@@ -268,6 +287,6 @@ def test_worst_severity_per_row():
             fnd.make([-1], code="d", severity="error", message="m"),
         ]
     )
-    assert fnd.worst_severity(f, 5).tolist() == [1, -1, 2, 2, -1]
+    assert flags.worst_severity(f, 5).tolist() == [1, -1, 2, 2, -1]
     cat = fnd.concat([fnd.make([1], code="b", severity="warning", message="m")], categorical=True)
-    assert fnd.worst_severity(cat, 2).tolist() == [-1, 1]
+    assert flags.worst_severity(cat, 2).tolist() == [-1, 1]

@@ -14,8 +14,12 @@ Columns of a findings table (in this order):
 
 from __future__ import annotations
 
+from functools import partial
+
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 from pandas.api.types import union_categoricals
 
 FINDING_COLUMNS: tuple[str, ...] = (
@@ -46,10 +50,20 @@ def _categorical(codes: np.ndarray, categories, dtype=None) -> pd.Categorical:
     """A Categorical of ``codes`` into ``categories``, which are distinct (they come from a
     factorize, or are one text): not hashed again to check it."""
     if dtype is None:
-        dtype = _distinct_dtype(pd.Index(list(categories), dtype=object))
+        arrow = _arrow_text(categories)
+        index = pd.Index(list(categories), dtype=object) if arrow is None else pd.Index(categories)
+        dtype = _distinct_dtype(index)
     return pd.Categorical.from_codes(
         _small_codes(codes, len(dtype.categories)), dtype=dtype, validate=False
     )
+
+
+def _arrow_text(values) -> pa.ChunkedArray | None:
+    """The Arrow text behind a pandas array or Index of Arrow text (pandas 3's ``str``), else None."""
+    dtype = getattr(values, "dtype", None)
+    if isinstance(dtype, pd.StringDtype) and dtype.storage == "pyarrow":
+        return pa.chunked_array(pa.array(getattr(values, "array", values)))
+    return None
 
 
 def _distinct_dtype(categories: pd.Index) -> pd.CategoricalDtype:
@@ -230,7 +244,7 @@ def _as_categorical(s: pd.Series, column: str) -> pd.Categorical:
         return pd.Categorical(s.astype(object), dtype=SEVERITY_DTYPE)
     if isinstance(s.dtype, pd.CategoricalDtype):
         arr = s.array
-        if arr.categories.dtype == object:
+        if arr.categories.dtype == object or _arrow_text(arr.categories) is not None:
             return arr
         return pd.Categorical.from_codes(
             arr.codes, categories=pd.Index(arr.categories, dtype=object), validate=False
@@ -241,13 +255,16 @@ def _as_categorical(s: pd.Series, column: str) -> pd.Categorical:
     )
 
 
-def concat(parts, *, categorical: bool = False) -> pd.DataFrame:
+def concat(parts, *, categorical: bool = False, run=None) -> pd.DataFrame:
     """Concatenate findings tables, sorted by row (file-level first), stable within a row.
 
     The text columns' categories are merged (``union_categoricals``); rows are reordered by a
     stable argsort of ``row`` only when the parts are not already in order. With
     ``categorical=False`` (default) the text columns come back as plain text (:func:`as_text`), as
     every consumer of a findings table expects; the pipeline keeps them Categorical until its end.
+    ``run``: runs a list of functions and gives their results in order (the pipeline shares them
+    among its threads); by default one after the other. The order and each column are separate
+    tasks.
     """
     parts = [p for p in parts if p is not None and len(p)]
     if not parts:
@@ -255,22 +272,28 @@ def concat(parts, *, categorical: bool = False) -> pd.DataFrame:
     if any(tuple(p.columns) != FINDING_COLUMNS for p in parts):  # extra or missing columns
         out = pd.concat([as_text(p) for p in parts], ignore_index=True)
         return out.sort_values("row", kind="stable").reset_index(drop=True)
-    rows = np.concatenate([p["row"].to_numpy(dtype="int64") for p in parts])
-    order = None
-    if rows.size > 1 and (rows[1:] < rows[:-1]).any():
-        order = np.argsort(rows, kind="stable")
-        rows = rows[order]
-    cols: dict[str, object] = {"row": rows}
-    for c in TEXT_COLUMNS:
+    run = run or (lambda fns: [f() for f in fns])
+
+    def in_order():
+        rows = np.concatenate([p["row"].to_numpy(dtype="int64") for p in parts])
+        if rows.size > 1 and (rows[1:] < rows[:-1]).any():
+            order = np.argsort(rows, kind="stable")
+            return rows[order], order
+        return rows, None
+
+    def joined(c):
         cats = [_as_categorical(p[c], c) for p in parts]
-        merged = cats[0] if len(cats) == 1 else _union(cats, c)
-        if order is not None:
-            merged = pd.Categorical.from_codes(
-                merged.codes[order], dtype=merged.dtype, validate=False
-            )
-        cols[c] = merged
-    out = pd.DataFrame(cols)
+        return cats[0] if len(cats) == 1 else _union(cats, c)
+
+    (rows, order), *merged = run([in_order] + [partial(joined, c) for c in TEXT_COLUMNS])
+    if order is not None:
+        merged = run([partial(_reordered, m, order) for m in merged])
+    out = pd.DataFrame({"row": rows, **dict(zip(TEXT_COLUMNS, merged, strict=True))})
     return out if categorical else as_text(out)
+
+
+def _reordered(cat: pd.Categorical, order: np.ndarray) -> pd.Categorical:
+    return pd.Categorical.from_codes(cat.codes[order], dtype=cat.dtype, validate=False)
 
 
 def _union(cats: list[pd.Categorical], column: str) -> pd.Categorical:
@@ -286,14 +309,21 @@ def _union(cats: list[pd.Categorical], column: str) -> pd.Categorical:
         return _union_into_big(cats, big)
     every = np.concatenate([c.categories.to_numpy(dtype=object) for c in cats])
     where, union = pd.factorize(every)
-    codes = []
-    start = 0
-    for cat, size in zip(cats, sizes, strict=True):
-        move = np.append(where[start : start + size], -1)  # code -1 (missing) stays -1
-        codes.append(move[cat.codes])
-        start += size
+    moves = np.split(where, np.cumsum(sizes)[:-1])
     dtype = _distinct_dtype(pd.Index(union, dtype=object))
-    return _categorical(np.concatenate(codes), union, dtype)
+    return _categorical(_moved_codes(cats, moves, len(union)), union, dtype)
+
+
+def _moved_codes(cats: list[pd.Categorical], moves: list[np.ndarray], n_categories: int):
+    """The parts' codes, each moved through its table (``moves``: a part's category -> the
+    union's), written one after the other into one array of the smallest integer type."""
+    out = np.empty(sum(len(c) for c in cats), dtype=_small_codes([], n_categories).dtype)
+    start = 0
+    for cat, move in zip(cats, moves, strict=True):
+        table = np.append(move, -1).astype(out.dtype)  # code -1 (missing) takes the last: -1
+        np.take(table, cat.codes, out=out[start : start + len(cat)])
+        start += len(cat)
+    return out
 
 
 def _union_into_big(cats: list[pd.Categorical], big: int) -> pd.Categorical:
@@ -305,19 +335,28 @@ def _union_into_big(cats: list[pd.Categorical], big: int) -> pd.Categorical:
     sizes = [len(c.categories) for c in others]
     every = np.concatenate([c.categories.to_numpy(dtype=object) for c in others])
     where, small = pd.factorize(every)
-    big_texts = cats[big].categories.to_numpy(dtype=object)
-    # -1: only in the big part (both Index of object: no conversion to Arrow text and back)
-    found = pd.Index(small, dtype=object).get_indexer(pd.Index(big_texts, dtype=object))
-    new = found < 0
+    big_texts = cats[big].categories
+    arrow = _arrow_text(big_texts)
+    if arrow is not None and all(isinstance(x, str) for x in small):
+        # Arrow text (ids as read): looked up and kept in Arrow
+        arrow = arrow.combine_chunks()
+        small_arrow = pa.array(list(small), type=arrow.type)
+        found = pc.index_in(arrow, value_set=small_arrow).fill_null(-1).to_numpy()
+    else:  # both Index of object: no conversion to Arrow text and back
+        arrow = None
+        big_texts = big_texts.to_numpy(dtype=object)
+        found = pd.Index(small, dtype=object).get_indexer(pd.Index(big_texts, dtype=object))
+    new = found < 0  # only in the big part
     move_big = np.where(new, len(small) + np.cumsum(new) - 1, found)
-    moves = iter(np.split(where, np.cumsum(sizes)[:-1]))
-    codes = []
-    for i, cat in enumerate(cats):
-        move = move_big if i == big else next(moves)
-        codes.append(np.append(move, -1)[cat.codes])  # code -1 (missing) stays -1
-    union = np.concatenate([np.asarray(small, dtype=object), big_texts[new]])
-    dtype = _distinct_dtype(pd.Index(union, dtype=object))
-    return _categorical(np.concatenate(codes), union, dtype)
+    moves = np.split(where, np.cumsum(sizes)[:-1])
+    moves.insert(big, move_big)
+    if arrow is not None:
+        joined = pa.concat_arrays([small_arrow, arrow.filter(pa.array(new))])
+        union = pd.Index(pd.array(joined, dtype=_TEXT_DTYPE))
+    else:
+        union = pd.Index(np.concatenate([np.asarray(small, dtype=object), big_texts[new]]))
+    dtype = _distinct_dtype(union.astype(object) if arrow is None else union)
+    return _categorical(_moved_codes(cats, moves, len(union)), union, dtype)
 
 
 def column_level_keys(findings: pd.DataFrame) -> list[tuple[str, ...]]:
@@ -359,16 +398,17 @@ def text_from_codes(codes: np.ndarray, names) -> pd.api.extensions.ExtensionArra
     as a column built from the object array ``names[codes]``, without one Python step per cell.
     """
     codes = np.asarray(codes)
-    names = np.asarray(names, dtype=object)
+    arrow = _arrow_text(names)
+    names = np.asarray(names, dtype=object) if arrow is None else names
     if getattr(_TEXT_DTYPE, "storage", None) != "pyarrow":  # pragma: no cover - pandas < 3
         out = names[np.where(codes >= 0, codes, 0)] if len(names) else np.full(codes.size, None)
         return np.where(codes >= 0, out, None).astype(object)
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
     missing = codes < 0
     idx = pa.array(codes.astype(np.int32, copy=False), mask=missing if missing.any() else None)
-    dictionary = pa.array(list(names) if len(names) else [""], type=pa.large_string())
+    if arrow is not None and len(arrow):  # Arrow text already: no Python string per category
+        dictionary = arrow.combine_chunks().cast(pa.large_string())
+    else:
+        dictionary = pa.array(list(names) if len(names) else [""], type=pa.large_string())
     return pd.array(pc.take(dictionary, idx), dtype=_TEXT_DTYPE)
 
 
@@ -382,107 +422,9 @@ def as_text(findings: pd.DataFrame) -> pd.DataFrame:
     for c in findings.columns:
         s = findings[c]
         if isinstance(s.dtype, pd.CategoricalDtype):
-            cols[c] = text_from_codes(s.array.codes, s.array.categories.to_numpy(dtype=object))
+            cats = s.array.categories
+            names = cats if _arrow_text(cats) is not None else cats.to_numpy(dtype=object)
+            cols[c] = text_from_codes(s.array.codes, names)
         else:
             cols[c] = s.to_numpy() if c == "row" else s.array
     return pd.DataFrame(cols, index=findings.index)
-
-
-def worst_severity(findings: pd.DataFrame, n_rows: int) -> np.ndarray:
-    """Each row's worst finding as its :data:`SEVERITY_RANK` (note 0, warning 1, error 2), -1 for
-    a row without one; findings about a column or the file (row -1) are left out. One pass per
-    severity, the worse ones written last: no group-by."""
-    worst = np.full(n_rows, -1, dtype=np.int8)
-    rows = findings["row"].to_numpy(dtype="int64")
-    sev = findings["severity"].astype(str).to_numpy()
-    inside = (rows >= 0) & (rows < n_rows)
-    for name, rank in SEVERITY_RANK.items():  # in increasing order of severity
-        worst[rows[inside & (sev == name)]] = rank
-    return worst
-
-
-def flags_per_row(findings: pd.DataFrame, n_rows: int) -> pd.Series:
-    """The ``flags`` column: each row's finding codes, unique, in order of appearance, ';'-separated.
-
-    Vectorised: the (row, code) pairs are de-duplicated and ranked within their row with numpy; each
-    distinct sequence of codes (there are few) is joined once and broadcast to its rows.
-    """
-    codes, texts = flag_codes(findings, n_rows)
-    return pd.Series(np.asarray(texts, dtype=object)[codes], dtype=object)
-
-
-def _digits(key: int, base: int) -> list[int]:
-    """The base-``base`` digits of ``key``, least significant first."""
-    out = []
-    while key:
-        key, d = divmod(key, base)
-        out.append(d)
-    return out
-
-
-def _runs(rows: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Where each run of equal values of sorted ``rows`` starts, its length, and each entry's
-    place in its run (0 for the first)."""
-    starts = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]])
-    lengths = np.diff(np.r_[starts, rows.size])
-    return starts, lengths, np.arange(rows.size) - np.repeat(starts, lengths)
-
-
-def _repeated_in_run(values: np.ndarray, rank: np.ndarray) -> np.ndarray:
-    """True where a value equals an earlier value of its run (``rank``: place in the run).
-
-    Each entry is compared with the one k places before it, for k = 1, 2, ... while any run is
-    longer than k: no hash, and the work is the sum of the squared run lengths (a row has a few
-    findings), not a pass over every (row, code) pair.
-    """
-    seen = np.zeros(values.size, dtype=bool)
-    idx = np.flatnonzero(rank >= 1)
-    k = 1
-    while idx.size:
-        seen[idx] |= values[idx] == values[idx - k]
-        k += 1
-        idx = idx[rank[idx] >= k]
-    return seen
-
-
-def flag_codes(findings: pd.DataFrame, n_rows: int) -> tuple[np.ndarray, list[str]]:
-    """:func:`flags_per_row` as integer codes per row into a list of distinct flag texts ("" first)."""
-    flag = np.zeros(n_rows, dtype=np.int64)
-    texts_out = [""]
-    rowpos = findings["row"].to_numpy(dtype="int64")
-    keep = rowpos >= 0
-    if keep.any():
-        rows = rowpos[keep]
-        code = findings["code"]
-        if isinstance(code.dtype, pd.CategoricalDtype):
-            code_id = code.array.codes.astype("int64")[keep]
-            code_names = code.array.categories.to_numpy(dtype=object)
-        else:
-            code_id, code_names = pd.factorize(code.to_numpy(dtype=object)[keep])
-        n_codes = len(code_names)
-        if rows.size > 1 and (rows[1:] < rows[:-1]).any():  # in row order, stable within a row
-            order = np.argsort(rows, kind="stable")
-            rows, code_id = rows[order], code_id[order]
-        starts, lengths, rank = _runs(rows)
-        first = ~_repeated_in_run(code_id, rank)  # first occurrence of each (row, code)
-        if not first.all():
-            rows, code_id = rows[first], code_id[first]
-            starts, lengths, rank = _runs(rows)
-        width = int(lengths.max())
-        base = n_codes + 1
-        names = np.asarray(code_names, dtype=object)
-        if width * np.log2(base) < 62:
-            # each row's code sequence as one integer, digit k (base n_codes + 1) its k-th code
-            # plus one, summed per row; the few distinct sequences are read back from their digits
-            digit = (base ** np.arange(width, dtype="int64"))[rank]
-            key = np.add.reduceat((code_id + 1) * digit, starts)
-            inverse, uniques = pd.factorize(key)
-            texts = [";".join(names[d - 1] for d in _digits(int(k), base)) for k in uniques]
-        else:
-            grid = np.full((starts.size, width), -1, dtype="int64")
-            grid[np.repeat(np.arange(starts.size), lengths), rank] = code_id
-            combos, inverse = np.unique(grid, axis=0, return_inverse=True)
-            texts = [";".join(names[c[c >= 0]]) for c in combos]
-        flag[rows[starts]] = 1 + np.asarray(inverse).ravel()
-        texts_out += texts
-    return flag, texts_out

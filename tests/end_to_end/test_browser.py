@@ -27,6 +27,7 @@ import pandas as pd
 import pytest
 
 from wallstress import findings as fnd
+from wallstress.analysis import flags
 from wallstress.analysis.result import Analysis
 from wallstress.report import page as R
 
@@ -160,7 +161,7 @@ def _analysis() -> Analysis:
         }
     )
     f = fnd.make([2, 5], code="pwd_atypical", severity="warning", message="PWd unusual; check it.")
-    outputs["flags"] = fnd.flags_per_row(f, n).to_numpy()
+    outputs["flags"] = flags.flags_per_row(f, n).to_numpy()
     return Analysis(
         pd.concat([canonical, outputs], axis=1),
         canonical,

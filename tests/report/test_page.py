@@ -17,6 +17,7 @@ import pandas as pd
 import pytest
 
 from wallstress import findings as fnd
+from wallstress.analysis import flags
 from wallstress.analysis.result import Analysis
 from wallstress.figures import save as figures_save
 from wallstress.report import page as R
@@ -84,7 +85,7 @@ def make_analysis(n: int = 12, *, evil_id: str = EVIL, n_flagged: int = 3) -> An
             fnd.make([-1], code="unit_inferred", severity="note", message="mm read as cm."),
         ]
     )
-    outputs["flags"] = fnd.flags_per_row(f, n).to_numpy()
+    outputs["flags"] = flags.flags_per_row(f, n).to_numpy()
     table = pd.concat([canonical, outputs], axis=1)
     methods = {
         "software": {"name": "wallstress", "version": "0.1.0"},

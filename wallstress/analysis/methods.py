@@ -10,6 +10,8 @@ from datetime import datetime, timezone
 
 import numpy as np
 
+from wallstress import findings as fnd
+from wallstress.analysis import flags
 from wallstress.schema.outputs import OUTPUTS
 from wallstress.schema.vocabulary import CLINICAL_CAUTION, FROM_MEMORY_CAUTION
 
@@ -46,21 +48,13 @@ def _formula_rows(used: dict) -> list[dict]:
     return rows
 
 
-def _rows_with(findings, severities: tuple[str, ...], n_rows: int) -> int:
-    """How many rows have at least one finding of these severities (no copy of the table)."""
-    rows = findings["row"].to_numpy(dtype="int64")
-    hit = findings["severity"].isin(severities).to_numpy(dtype=bool) & (rows >= 0)
-    seen = np.zeros(max(n_rows, int(rows.max(initial=-1)) + 1), dtype=bool)
-    seen[rows[hit]] = True
-    return int(seen.sum())
-
-
 def build_methods(
     options, refset, used: dict, mapped, findings, n_rows: int, *, version: str
 ) -> dict:
     """Assemble the methods record of one run (plain, JSON-serialisable types only)."""
-    errors = _rows_with(findings, ("error",), n_rows)
-    flagged = _rows_with(findings, ("error", "warning"), n_rows)
+    worst = flags.worst_severity(findings, n_rows)  # one pass: rows with an error, a warning
+    errors = int((worst >= fnd.SEVERITY_RANK["error"]).sum())
+    flagged = int((worst >= fnd.SEVERITY_RANK["warning"]).sum())
     unverified = [
         f"{r['measure']} {r.get('sex', '')} {r.get('grade', '')}: {r['value']} ({r['source']}; {r['verified']})".replace(
             "  ", " "

@@ -10,6 +10,7 @@ import os
 import threading
 from concurrent.futures import ThreadPoolExecutor
 from contextlib import contextmanager
+from functools import partial
 
 import numpy as np
 import pandas as pd
@@ -17,6 +18,7 @@ from pandas.api.types import union_categoricals
 
 from wallstress import __version__
 from wallstress import findings as fnd
+from wallstress.analysis import flags
 from wallstress.analysis.coverage import blank_inputs, missing_inputs
 from wallstress.analysis.measures import compute
 from wallstress.analysis.methods import build_methods
@@ -105,22 +107,26 @@ def analyse_with_findings(
         out, cparts, used = _compute_in_partitions(canonical, options, refset, pool)
         for task in across:
             vparts += _finish(task)
-    # every step's findings joined once, in step order (within a row: reader, mapping, validation,
-    # measures), sorted by row
-    missing = missing_inputs(mapped.canonical.columns, mapped.unmapped)
-    blanks = blank_inputs(canonical, [prior_findings, mapped.findings, *vparts], labels)
-    skip = non_study_rows(df, mapped.canonical, blanked=_blanked_by_reader(prior_findings))
-    parts = [prior_findings, mapped.findings, *missing, *vparts, *blanks, *cparts]
-    if skip.any():  # not studies: no flags, one note
-        parts = [_without_rows(p, skip) for p in parts] + [not_study_finding(skip, df)]
-    findings = fnd.concat(parts, categorical=True)
-    out[OUT.flags] = fnd.categorical_text(*fnd.flag_codes(findings, len(df)))
+        # every step's findings joined once, in step order (within a row: reader, mapping,
+        # validation, measures), sorted by row; the columns joined in the threads too
+        missing = missing_inputs(mapped.canonical.columns, mapped.unmapped)
+        blanks = blank_inputs(canonical, [prior_findings, mapped.findings, *vparts], labels)
+        skip = non_study_rows(df, mapped.canonical, blanked=_blanked_by_reader(prior_findings))
+        parts = [prior_findings, mapped.findings, *missing, *vparts, *blanks, *cparts]
+        if skip.any():  # not studies: no flags, one note
+            parts = [_without_rows(p, skip) for p in parts] + [not_study_finding(skip, df)]
+        findings = fnd.concat(parts, categorical=True, run=partial(_shared, pool))
+        del parts
+        row_flags = _start(pool, flags.flag_codes, findings, len(df))  # beside the methods record
+        methods = build_methods(
+            options, refset, used, mapped, findings, len(df), version=__version__
+        )
+        out[OUT.flags] = fnd.categorical_text(*_finish(row_flags))
     # copy=False: each output its own block (no stacking copy of ~30 float columns); an array that
     # is read-only (a view of an input) or already in another column is copied first
     outputs = pd.DataFrame(_own_arrays(out, OUTPUT_COLUMNS), index=canonical.index, copy=False)
     del out
     table = _append(df, outputs)
-    methods = build_methods(options, refset, used, mapped, findings, len(df), version=__version__)
     counts = methods["counts"]
     studies = ~skip
     counts["rows_not_studies"] = int(skip.sum())
@@ -214,6 +220,30 @@ def _helpers(n: int):
 def _start(pool: ThreadPoolExecutor | None, fn, *args) -> tuple:
     """A task handed to the pool, to be taken back by :func:`_finish`."""
     return (None if pool is None else pool.submit(fn, *args)), fn, args
+
+
+def _shared(pool: ThreadPoolExecutor | None, fns: list) -> list:
+    """The results of ``fns`` (functions of no argument), in order; the calling thread and the
+    pool's threads each take the next one not yet taken, until none is left."""
+    if pool is None or len(fns) < 2:
+        return [f() for f in fns]
+    results: list = [None] * len(fns)
+    queue = iter(range(len(fns)))
+    lock = threading.Lock()
+
+    def take():
+        while True:
+            with lock:
+                i = next(queue, None)
+            if i is None:
+                return
+            results[i] = fns[i]()
+
+    helpers = [pool.submit(take) for _ in range(threads() - 1)]
+    take()
+    for h in helpers:
+        h.result()
+    return results
 
 
 def _finish_all(tasks: list[tuple]) -> list:

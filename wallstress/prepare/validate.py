@@ -139,7 +139,7 @@ def _coded_cells(coded, rows: np.ndarray, cells: pd.Series | None):
             return None
     used = np.bincount(at, minlength=len(uniques)) > 0
     renumber = np.cumsum(used) - 1
-    return renumber[at], np.asarray(uniques[used], dtype=object).tolist()
+    return renumber[at], uniques[used]  # Arrow text stays Arrow (findings keep it so)
 
 
 def validate_parts(

@@ -12,6 +12,7 @@ from collections.abc import Mapping
 import numpy as np
 import pandas as pd
 
+from wallstress.analysis.flags import worst_severity
 from wallstress.figures.common import (
     GEOMETRY_CLASSES,
     GEOMETRY_LABELS,
@@ -22,7 +23,7 @@ from wallstress.figures.common import (
 )
 from wallstress.figures.geometry_plane import geometry_plane
 from wallstress.figures.stress_shortening import line_values, stress_shortening
-from wallstress.findings import SEVERITY_RANK, worst_severity
+from wallstress.findings import SEVERITY_RANK
 from wallstress.report.html import (
     COLUMN_LABELS,
     _e,
@@ -67,7 +68,7 @@ MODELS: tuple[str, ...] = ("reproducibility", "midwall_stress_line", "mass_predi
 
 def _row_rank(rowwise: pd.DataFrame) -> pd.Series:
     """Each row's highest severity (note 0, warning 1, error 2), indexed by the rows that have a
-    finding (:func:`wallstress.findings.worst_severity`)."""
+    finding (:func:`wallstress.analysis.flags.worst_severity`)."""
     n = int(rowwise["row"].max()) + 1 if len(rowwise) else 0
     worst = worst_severity(rowwise, n)
     have = np.flatnonzero(worst >= 0)

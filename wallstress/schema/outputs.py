@@ -476,7 +476,7 @@ OUTPUTS: tuple[Output, ...] = (
             FROM_MEMORY,
         ),
     ),
-    Output("flags", "codes", "Flags", "findings.flag_codes"),
+    Output("flags", "codes", "Flags", "analysis.flags.flag_codes"),
 )
 
 BY_OUTPUT: dict[str, Output] = {o.name: o for o in OUTPUTS}

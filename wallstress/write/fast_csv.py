@@ -183,7 +183,7 @@ def categorical_as_text(col: pd.Series) -> pa.Array | None:
     cats = col.dtype.categories
     if pd.api.types.infer_dtype(cats, skipna=False) not in ("string", "empty"):
         return None
-    return _as_text(text_from_codes(col.array.codes, cats.to_numpy(dtype=object)))
+    return _as_text(text_from_codes(col.array.codes, cats))
 
 
 def _arrow_column(col: pd.Series, whole_number: bool = False) -> pa.Array:

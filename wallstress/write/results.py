@@ -32,6 +32,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from wallstress import findings as _findings
+from wallstress.analysis import flags
 from wallstress.errors import OutputError
 from wallstress.schema.display import KEY_COLUMNS, label
 from wallstress.schema.vocabulary import OUT, in_words
@@ -176,7 +177,7 @@ def with_marks(key: pd.DataFrame, analysis) -> tuple[pd.DataFrame, tuple]:
     key = key.copy()
     n = len(key)
     # the row's worst finding; a note does not count
-    worst = _findings.worst_severity(analysis.findings, n)
+    worst = flags.worst_severity(analysis.findings, n)
     key["check"] = np.array(["", "", "warning", "error"], dtype=object)[worst + 1]
     letter = {c: col_letters(j) for j, c in enumerate(key.columns)}
     check, last = letter["check"], n + 1
