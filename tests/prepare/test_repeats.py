@@ -12,9 +12,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from wallstress.prepare.repeats import (
-    _packed_text,
     distinct_of,
     id_keys,
+    packed_text,
     repeated,
     repeated_pairs,
 )
@@ -139,5 +139,5 @@ def test_packing_reads_arrow_string_too():
     """Arrow ``string`` (32-bit offsets) is packed as ``large_string`` is."""
     for kind in (pa.string(), pa.large_string()):
         text = pa.array(["AB1", None, "AB2", "AB1"], type=kind)
-        keys, span = _packed_text(text, np.array([True, False, True, True]))
+        keys, span = packed_text(text, np.array([True, False, True, True]))
         assert keys[0] == keys[3] != keys[2] and span == 2

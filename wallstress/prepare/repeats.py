@@ -38,14 +38,14 @@ def id_keys(ids: pd.Series) -> tuple[np.ndarray, np.ndarray, int]:
             if high - low < KEY_LIMIT:
                 return np.where(present, v - low, 0), present, high - low + 1
     elif isinstance(ids.dtype, pd.StringDtype) and ids.dtype.storage == "pyarrow":
-        packed = _packed_text(pa.chunked_array(pa.array(ids.array)).combine_chunks(), present)
+        packed = packed_text(pa.chunked_array(pa.array(ids.array)).combine_chunks(), present)
         if packed is not None:
             return packed[0], present, packed[1]
     codes, uniques = pd.factorize(ids)  # one hash; -1 for missing
     return np.maximum(codes, 0).astype(np.int64), present, max(len(uniques), 1)
 
 
-def _packed_text(text: pa.Array, present: np.ndarray) -> tuple[np.ndarray, int] | None:
+def packed_text(text: pa.Array, present: np.ndarray) -> tuple[np.ndarray, int] | None:
     """Mixed-radix keys of Arrow text whose present cells have one byte length, or None."""
     if not present.any() or not (
         pa.types.is_large_string(text.type) or pa.types.is_string(text.type)
