@@ -115,6 +115,34 @@ def test_concat_equals_plain_concat_and_stable_sort(seed, n_parts):
     pd.testing.assert_frame_equal(fnd.concat(parts), fnd.as_text(got))
 
 
+@pytest.mark.parametrize("arrow", [True, False])
+def test_concat_with_one_part_holding_most_texts(arrow):
+    """A part with more distinct values than ``BIG_PART_CATEGORIES`` (the ids of many repeated
+    studies; Arrow text as read, or Python text) joins the others without hashing its texts again:
+    the same table as pandas' concat and stable sort (common practice, no source), including
+    values that are in both the big part and a small one, and missing values."""
+    n_big = fnd.BIG_PART_CATEGORIES + 500
+    ids = [f"ST-{i:07d}" for i in range(n_big)]
+    texts = pd.array(ids, dtype="str") if arrow else ids
+    rows = np.arange(2 * n_big) % (n_big + 7)
+    codes = np.arange(2 * n_big) % n_big
+    codes[::97] = -1  # no value shown
+    big = fnd.make(
+        np.sort(rows), code="dup", severity="warning", message="m", value_codes=(codes, texts)
+    )
+    if arrow:
+        assert isinstance(big["value"].array.categories.dtype, pd.StringDtype)
+    small = fnd.make(
+        [3, 0, 5], code="x", severity="error", message="m", values=["ST-0000005", 4.5, None]
+    )
+    other = fnd.make([1], code="y", severity="note", message="m", values=["ST-9999999"])
+    parts = [small, big, other]
+    got = fnd.concat(parts, categorical=True)
+    pd.testing.assert_frame_equal(_plain(got), _reference_concat(parts))
+    assert got["value"].array.categories.is_unique
+    pd.testing.assert_frame_equal(fnd.concat(parts), fnd.as_text(got))
+
+
 def test_concat_accepts_plain_text_parts():
     """Tables built elsewhere with plain text columns merge with Categorical ones (common practice,
     no source)."""

@@ -129,13 +129,18 @@ def blank_inputs(canonical, earlier, labels: dict | None = None) -> list:
         if part is None or not len(part):
             continue
         field = part["field"]
-        cats = field.cat.categories if isinstance(field.dtype, pd.CategoricalDtype) else None
-        if cats is not None and not set(map(str, cats)) & set(present):
+        if isinstance(field.dtype, pd.CategoricalDtype):  # compared by its codes
+            names = [str(c) for c in field.cat.categories]
+            codes = field.array.codes
+            about = {f: codes == names.index(f) for f in present if f in names}
+        else:
+            about = {f: (field == f).to_numpy(dtype=bool) for f in present}
+        if not about:
             continue  # a rule about other fields (most rules are about one field)
         rows = part["row"].to_numpy(dtype="int64")
         inside = (rows >= 0) & (rows < n)
-        for f in present:
-            hit = inside & (field == f).to_numpy(dtype=bool)
+        for f, is_f in about.items():
+            hit = inside & is_f
             if hit.any():
                 said[f][rows[hit]] = True
     parts = []

@@ -112,7 +112,9 @@ def flag_codes(findings: pd.DataFrame, n_rows: int) -> tuple[np.ndarray, list[st
     texts_out = [""]
     rowpos = findings["row"].to_numpy(dtype="int64")
     keep = rowpos >= 0
-    if keep.any():
+    if rowpos.size and not (rowpos[1:] < rowpos[:-1]).any():  # in row order (as joined): the
+        keep = slice(int(np.searchsorted(rowpos, 0)), None)  # rows >= 0 are the end, no copy
+    if rowpos[keep].size:
         rows = rowpos[keep]
         code = findings["code"]
         if isinstance(code.dtype, pd.CategoricalDtype):
