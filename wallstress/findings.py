@@ -76,12 +76,16 @@ def _distinct_dtype(categories: pd.Index) -> pd.CategoricalDtype:
     return fast(categories, ordered=False)
 
 
-def _small_codes(codes, n_categories: int) -> np.ndarray:
-    codes = np.asarray(codes)
+def _code_dtype(n_categories: int) -> np.dtype:
+    """The smallest signed integer type holding codes 0..n-1 and -1."""
     for t in (np.int8, np.int16, np.int32):
         if n_categories < np.iinfo(t).max:
-            return codes.astype(t, copy=False)
-    return codes.astype(np.int64, copy=False)
+            return np.dtype(t)
+    return np.dtype(np.int64)
+
+
+def _small_codes(codes, n_categories: int) -> np.ndarray:
+    return np.asarray(codes).astype(_code_dtype(n_categories), copy=False)
 
 
 def _constant(text: str, n: int) -> pd.Categorical:
@@ -273,27 +277,53 @@ def concat(parts, *, categorical: bool = False, run=None) -> pd.DataFrame:
         out = pd.concat([as_text(p) for p in parts], ignore_index=True)
         return out.sort_values("row", kind="stable").reset_index(drop=True)
     run = run or (lambda fns: [f() for f in fns])
+    lengths = [len(p) for p in parts]
 
     def in_order():
+        """(rows in order, the permutation or None, each finding's part in that order)."""
         rows = np.concatenate([p["row"].to_numpy(dtype="int64") for p in parts])
+        part = np.repeat(np.arange(len(parts), dtype=_code_dtype(len(parts))), lengths)
         if rows.size > 1 and (rows[1:] < rows[:-1]).any():
             order = np.argsort(rows, kind="stable")
-            return rows[order], order
-        return rows, None
+            return rows[order], order, part[order]
+        return rows, None, part
 
     def joined(c):
         cats = [_as_categorical(p[c], c) for p in parts]
+        if len(cats) > 1 and all(len(x.categories) == 1 and not x.codes.any() for x in cats):
+            return _one_text_per_part(cats, c)  # (each part's code, dtype): placed below
         return cats[0] if len(cats) == 1 else _union(cats, c)
 
-    (rows, order), *merged = run([in_order] + [partial(joined, c) for c in TEXT_COLUMNS])
-    if order is not None:
-        merged = run([partial(_reordered, m, order) for m in merged])
+    (rows, order, part), *merged = run([in_order] + [partial(joined, c) for c in TEXT_COLUMNS])
+    merged = run([partial(_placed, m, order, part) for m in merged])
     out = pd.DataFrame({"row": rows, **dict(zip(TEXT_COLUMNS, merged, strict=True))})
     return out if categorical else as_text(out)
 
 
+def _one_text_per_part(cats: list[pd.Categorical], column: str) -> tuple:
+    """A column whose every part is one text throughout (a rule's code, column, message): each
+    part's code into the joined categories, and their dtype. Its codes are then looked up per
+    finding from its part (one small table), with no table of codes per part to join and reorder."""
+    if column == "severity":
+        return np.array(
+            [SEVERITY_RANK[str(x.categories[0])] for x in cats], np.int8
+        ), SEVERITY_DTYPE
+    where, union = pd.factorize(np.array([x.categories[0] for x in cats], dtype=object))
+    table = _small_codes(where, len(union))
+    return table, _distinct_dtype(pd.Index(union, dtype=object))
+
+
+def _placed(merged, order: np.ndarray | None, part: np.ndarray) -> pd.Categorical:
+    """A joined column in row order: codes looked up from each finding's part (a column of one
+    text per part), or the joined codes reordered."""
+    if isinstance(merged, tuple):
+        table, dtype = merged
+        return pd.Categorical.from_codes(np.take(table, part), dtype=dtype, validate=False)
+    return merged if order is None else _reordered(merged, order)
+
+
 def _reordered(cat: pd.Categorical, order: np.ndarray) -> pd.Categorical:
-    return pd.Categorical.from_codes(cat.codes[order], dtype=cat.dtype, validate=False)
+    return pd.Categorical.from_codes(np.take(cat.codes, order), dtype=cat.dtype, validate=False)
 
 
 def _union(cats: list[pd.Categorical], column: str) -> pd.Categorical:
@@ -317,7 +347,7 @@ def _union(cats: list[pd.Categorical], column: str) -> pd.Categorical:
 def _moved_codes(cats: list[pd.Categorical], moves: list[np.ndarray], n_categories: int):
     """The parts' codes, each moved through its table (``moves``: a part's category -> the
     union's), written one after the other into one array of the smallest integer type."""
-    out = np.empty(sum(len(c) for c in cats), dtype=_small_codes([], n_categories).dtype)
+    out = np.empty(sum(len(c) for c in cats), dtype=_code_dtype(n_categories))
     start = 0
     for cat, move in zip(cats, moves, strict=True):
         table = np.append(move, -1).astype(out.dtype)  # code -1 (missing) takes the last: -1

@@ -99,7 +99,7 @@ def _flags_as_code_sets(rows: np.ndarray, code_id: np.ndarray, names) -> tuple |
     place = np.empty(n, dtype=np.uint64)
     place[order] = np.arange(n, dtype=np.uint64)
     starts = np.flatnonzero(np.r_[True, ~same])
-    key = np.bitwise_or.reduceat(np.left_shift(np.uint64(1), place[code_id]), starts)
+    key = np.bitwise_or.reduceat(np.left_shift(np.uint64(1), np.take(place, code_id)), starts)
     inverse, uniques = pd.factorize(key)
     in_order = [str(names[c]) for c in order]
     texts = [";".join(in_order[j] for j in range(n) if int(k) >> j & 1) for k in uniques]
