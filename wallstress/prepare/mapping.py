@@ -166,8 +166,14 @@ def map_columns(
     # long list; the results are joined in column order, so nothing depends on the threads
     read = partial(read_column, raw, numbers or {}, options)
     if workers > 1 and n >= PARALLEL_MIN_ROWS and len(jobs) > 1:
+        # text to parse (dates, sex, ids) takes longest: started first, so that the numbers
+        # fill the threads around it
+        first = sorted(range(len(jobs)), key=lambda i: jobs[i][5].kind == "number")
         with ThreadPoolExecutor(workers, thread_name_prefix="wallstress-map") as pool:
-            results = list(pool.map(read, jobs))
+            done_first = list(pool.map(read, [jobs[i] for i in first]))
+        results = [None] * len(jobs)
+        for i, r in zip(first, done_first, strict=True):
+            results[i] = r
     else:
         results = [read(job) for job in jobs]
     ordered: list[pd.DataFrame] = []
