@@ -246,20 +246,6 @@ def _shared(pool: ThreadPoolExecutor | None, fns: list) -> list:
     return results
 
 
-def _finish_all(tasks: list[tuple]) -> list:
-    """The results of ``tasks``, in order: the calling thread first runs every task no thread
-    has started yet, then waits for the others."""
-    results: list = [None] * len(tasks)
-    ran = [False] * len(tasks)
-    for i, (future, fn, args) in enumerate(tasks):
-        if future is None or future.cancel():
-            results[i], ran[i] = fn(*args), True
-    for i, (future, _, _) in enumerate(tasks):
-        if not ran[i]:
-            results[i] = future.result()
-    return results
-
-
 def _finish(task: tuple):
     """A task's result: a task no thread of the pool has started yet is run in the calling
     thread (which would otherwise only wait), so the work is shared however long each part
@@ -273,8 +259,8 @@ def _finish(task: tuple):
 def _compute_in_partitions(
     c: pd.DataFrame, o: Options, refset, pool: ThreadPoolExecutor | None
 ) -> tuple[dict, list, dict]:
-    """:func:`~wallstress.analysis.measures.compute` over row partitions, the first in the
-    calling thread and the others handed to ``pool`` (:func:`_start`), joined in row order.
+    """:func:`~wallstress.analysis.measures.compute` over row partitions, shared between the
+    calling thread and ``pool``'s (:func:`_shared`), joined in row order.
 
     ``PARTITIONS_PER_THREAD`` partitions per thread, so that a thread freed early (the checks
     across rows take less time than the row rules) takes the ones left. Each partition writes
@@ -299,8 +285,9 @@ def _compute_in_partitions(
                 out[name] = None  # written
         return out, parts, used
 
-    later = [_start(pool, work, b) for b in bounds[1:]]  # the first partition in this thread
-    results = [work(bounds[0]), *_finish_all(later)]
+    # this thread starts with the first partition; the pool's threads join in as soon as the
+    # checks across rows (handed to them earlier) are done
+    results = _shared(pool, [partial(work, b) for b in bounds])
     out: dict[str, object] = {}
     for name in list(results[0][0]):
         pieces = [r[0].pop(name) for r in results]
