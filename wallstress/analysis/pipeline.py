@@ -104,14 +104,22 @@ def analyse_with_findings(
         ]
         canonical, vparts = validate_parts(mapped.canonical, labels, df, across_rows=False)
         canonical.index = pd.RangeIndex(len(df))
+
+        def checked():
+            """Every check's findings (the row rules', then those across rows), the blank
+            inputs' and the rows that are not studies: once the checks across rows are done, in
+            a thread of the pool beside the measures."""
+            every = vparts + [part for task in across for part in _finish(task)]
+            blanks = blank_inputs(canonical, [prior_findings, mapped.findings, *every], labels)
+            blanked = _blanked_by_reader(prior_findings)
+            return every, blanks, non_study_rows(df, mapped.canonical, blanked=blanked)
+
+        checks = _start(pool, checked)  # after the checks across rows, before the partitions
         out, cparts, used = _compute_in_partitions(canonical, options, refset, pool)
-        for task in across:
-            vparts += _finish(task)
+        vparts, blanks, skip = _finish(checks)
         # every step's findings joined once, in step order (within a row: reader, mapping,
         # validation, measures), sorted by row; the columns joined in the threads too
         missing = missing_inputs(mapped.canonical.columns, mapped.unmapped)
-        blanks = blank_inputs(canonical, [prior_findings, mapped.findings, *vparts], labels)
-        skip = non_study_rows(df, mapped.canonical, blanked=_blanked_by_reader(prior_findings))
         parts = [prior_findings, mapped.findings, *missing, *vparts, *blanks, *cparts]
         if skip.any():  # not studies: no flags, one note
             parts = [_without_rows(p, skip) for p in parts] + [not_study_finding(skip, df)]
