@@ -290,7 +290,7 @@ def concat(parts, *, categorical: bool = False, run=None) -> pd.DataFrame:
 
     def joined(c):
         cats = [_as_categorical(p[c], c) for p in parts]
-        if len(cats) > 1 and all(len(x.categories) == 1 and not x.codes.any() for x in cats):
+        if len(cats) > 1 and all(_one_code(x) for x in cats):
             return _one_text_per_part(cats, c)  # (each part's code, dtype): placed below
         return cats[0] if len(cats) == 1 else _union(cats, c)
 
@@ -300,17 +300,20 @@ def concat(parts, *, categorical: bool = False, run=None) -> pd.DataFrame:
     return out if categorical else as_text(out)
 
 
+def _one_code(cat: pd.Categorical) -> bool:
+    """Whether every value of a (non-empty) part is the same text, none missing."""
+    return cat.codes[0] >= 0 and bool((cat.codes == cat.codes[0]).all())
+
+
 def _one_text_per_part(cats: list[pd.Categorical], column: str) -> tuple:
-    """A column whose every part is one text throughout (a rule's code, column, message): each
+    """A column whose every part is one text throughout (a rule's code, column, severity): each
     part's code into the joined categories, and their dtype. Its codes are then looked up per
     finding from its part (one small table), with no table of codes per part to join and reorder."""
-    if column == "severity":
-        return np.array(
-            [SEVERITY_RANK[str(x.categories[0])] for x in cats], np.int8
-        ), SEVERITY_DTYPE
-    where, union = pd.factorize(np.array([x.categories[0] for x in cats], dtype=object))
-    table = _small_codes(where, len(union))
-    return table, _distinct_dtype(pd.Index(union, dtype=object))
+    if column == "severity":  # one fixed dtype for every part
+        return np.array([x.codes[0] for x in cats], dtype=np.int8), SEVERITY_DTYPE
+    texts = np.array([x.categories[x.codes[0]] for x in cats], dtype=object)
+    where, union = pd.factorize(texts)
+    return _small_codes(where, len(union)), _distinct_dtype(pd.Index(union, dtype=object))
 
 
 def _placed(merged, order: np.ndarray | None, part: np.ndarray) -> pd.Categorical:
@@ -367,7 +370,7 @@ def _union_into_big(cats: list[pd.Categorical], big: int) -> pd.Categorical:
     where, small = pd.factorize(every)
     big_texts = cats[big].categories
     arrow = _arrow_text(big_texts)
-    if arrow is not None and all(isinstance(x, str) for x in small):
+    if arrow is not None and pd.api.types.infer_dtype(small) in ("string", "empty"):
         # Arrow text (ids as read): looked up and kept in Arrow
         arrow = arrow.combine_chunks()
         small_arrow = pa.array(list(small), type=arrow.type)
