@@ -35,7 +35,7 @@ def worst_severity(findings: pd.DataFrame, n_rows: int) -> np.ndarray:
 def flags_per_row(findings: pd.DataFrame, n_rows: int) -> pd.Series:
     """The ``flags`` column: each row's finding codes, unique, in order of appearance, ';'-separated.
 
-    Vectorised: the (row, code) pairs are de-duplicated and ranked within their row with numpy; each
+    Vectorised (:func:`flag_codes`): each row's codes become one integer, with numpy; each
     distinct sequence of codes (there are few) is joined once and broadcast to its rows.
     """
     codes, texts = flag_codes(findings, n_rows)
@@ -85,7 +85,7 @@ def _flags_as_code_sets(rows: np.ndarray, code_id: np.ndarray, names) -> tuple |
     distinct flag texts, those texts), or None where no order agrees with every row (a row whose
     codes come back to an earlier one) or there are more codes than bits."""
     n = len(names)
-    if n > 63:
+    if n > 63 or (code_id.size and code_id.min() < 0):  # more codes than bits, or a code missing
         return None
     same = rows[1:] == rows[:-1]
     c = code_id.astype(np.int16, copy=False)  # n <= 63: a pair's number fits
