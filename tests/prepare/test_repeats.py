@@ -141,3 +141,18 @@ def test_packing_reads_arrow_string_too():
         text = pa.array(["AB1", None, "AB2", "AB1"], type=kind)
         keys, span = packed_text(text, np.array([True, False, True, True]))
         assert keys[0] == keys[3] != keys[2] and span == 2
+
+
+def test_a_missing_cell_that_keeps_bytes_is_not_packed():
+    """Arrow lets a missing cell keep bytes in the buffer (Apache Arrow columnar format: a null
+    slot's length may be positive): such a column is not read as one row per width of bytes."""
+    data = b"AB1" + b"XYZ" + b"AB1"
+    offsets = np.array([0, 3, 6, 9], dtype=np.int64)
+    validity = pa.py_buffer(bytes([0b101]))  # the middle cell missing, its bytes kept
+    text = pa.Array.from_buffers(
+        pa.large_string(), 3, [validity, pa.py_buffer(offsets.tobytes()), pa.py_buffer(data)]
+    )
+    assert text.to_pylist() == ["AB1", None, "AB1"]
+    assert packed_text(text, np.array([True, False, True])) is None
+    s = pd.Series(pd.array(text, dtype="str"))
+    assert repeated(*id_keys(s)).tolist() == [True, False, True]

@@ -56,9 +56,11 @@ def packed_text(text: pa.Array, present: np.ndarray) -> tuple[np.ndarray, int] |
     offsets = np.frombuffer(buffers[1], dtype=offsets_type)[
         text.offset : text.offset + len(text) + 1
     ]
-    lengths = np.diff(offsets)[present]
-    width = int(lengths[0])
-    if width == 0 or (lengths != width).any():
+    lengths = np.diff(offsets)
+    width = int(lengths[present][0])
+    # every present cell that long, and every missing one empty (Arrow allows a missing cell to
+    # keep bytes: then the cells are not one after the other)
+    if width == 0 or (lengths != np.where(present, width, 0)).any():
         return None
     # the present cells' bytes, one row each: missing cells take no bytes between them
     data = np.frombuffer(buffers[2], dtype=np.uint8)[offsets[0] : offsets[-1]]
