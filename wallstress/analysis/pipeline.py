@@ -32,11 +32,12 @@ from wallstress.schema.outputs import OUTPUT_COLUMNS
 from wallstress.schema.units import UNIT_CHOICES
 from wallstress.schema.vocabulary import METHOD_CHOICES, OUT
 
-# Large tables are computed in row partitions, one thread each: every measure is a function of its
-# own row, numpy releases the GIL inside its array loops, so the partitions run on separate cores
-# and the joined result is the same, value for value, as one pass over all rows. A partition holds
-# at least PARTITION_MIN_ROWS rows (below that the threads cost more than they save); the number of
-# threads is the CPUs this process may use, at most MAX_THREADS, or WALLSTRESS_THREADS if set.
+# Large tables are computed in row partitions, PARTITIONS_PER_THREAD per thread, each taken by the
+# next free thread: every measure is a function of its own row, numpy releases the GIL inside its
+# array loops, so the partitions run on separate cores and the joined result is the same, value for
+# value, as one pass over all rows. A partition holds at least PARTITION_MIN_ROWS rows (below that
+# the threads cost more than they save); the number of threads is the CPUs this process may use, at
+# most MAX_THREADS, or WALLSTRESS_THREADS if set.
 PARTITION_MIN_ROWS = 250_000
 PARTITIONS_PER_THREAD = 2
 MAX_THREADS = 8
