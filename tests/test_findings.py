@@ -318,3 +318,12 @@ def test_worst_severity_per_row():
     assert flags.worst_severity(f, 5).tolist() == [1, -1, 2, 2, -1]
     cat = fnd.concat([fnd.make([1], code="b", severity="warning", message="m")], categorical=True)
     assert flags.worst_severity(cat, 2).tolist() == [-1, 1]
+    # severities held another way (a Categorical of its own categories, as parquet reads them
+    # back; a missing or unknown one): ranked as text, the unknown ones left out
+    other = pd.DataFrame(
+        {
+            "row": [0, 1, 1, 2, 2],
+            "severity": pd.Categorical(["warning", None, "error", "note", "bogus"]),
+        }
+    )
+    assert flags.worst_severity(other, 4).tolist() == [1, 2, 0, -1]

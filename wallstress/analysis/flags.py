@@ -25,7 +25,9 @@ def worst_severity(findings: pd.DataFrame, n_rows: int) -> np.ndarray:
     if isinstance(severity.dtype, pd.CategoricalDtype) and severity.dtype == SEVERITY_DTYPE:
         rank = severity.array.codes  # the categories are in rank order: a code is its rank
     else:
-        rank = severity.map(SEVERITY_RANK).fillna(-1).to_numpy(dtype=np.int8)
+        # as text (a Categorical of other categories too: parquet read back), unknown or missing -1
+        text = pd.Series(severity.to_numpy(dtype=object))
+        rank = text.map(SEVERITY_RANK).fillna(-1).to_numpy(dtype=np.int8)
     inside = (rows >= 0) & (rows < n_rows)
     for r in sorted(SEVERITY_RANK.values()):  # in increasing order of severity
         worst[rows[inside & (rank == r)]] = r

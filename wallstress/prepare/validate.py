@@ -128,18 +128,17 @@ def _distinct_ids(ids: pd.Series, keys: np.ndarray, dup: np.ndarray):
 
 
 def _coded_cells(coded, rows: np.ndarray, cells: pd.Series | None):
-    """(codes, distinct texts) of the flagged ``rows`` from a column's codes (``coded``: codes
-    per row, distinct values), or None where a flagged cell as written (``cells``) differs from
-    its value (spaces around an id): those are shown as written."""
+    """(codes, distinct texts) of the flagged ``rows`` from ``coded`` (:func:`_distinct_ids`:
+    codes per row into the distinct values of exactly these rows), or None where a flagged cell
+    as written (``cells``) differs from its value (spaces around an id): those are shown as
+    written. Arrow text stays Arrow (the findings keep it so)."""
     codes, uniques = coded
     at = codes[rows]
     if cells is not None:
         same = pd.Series(uniques.take(at)).reset_index(drop=True) == cells
         if not same.fillna(False).all():
             return None
-    used = np.bincount(at, minlength=len(uniques)) > 0
-    renumber = np.cumsum(used) - 1
-    return renumber[at], uniques[used]  # Arrow text stays Arrow (findings keep it so)
+    return at, uniques
 
 
 def validate_parts(
