@@ -34,6 +34,7 @@ from wallstress.errors import OutputError
 from wallstress.options import Options
 from wallstress.read.chunks import _at_least_one, _csv_chunks, _input_kind, _parquet_chunks
 from wallstress.read.guards import check_regular_file
+from wallstress.read.studies import system_arrow_memory
 from wallstress.write import safety
 from wallstress.write.results import planned_outputs, results_keys
 from wallstress.write.streams import CHUNK_OUTPUT_SUFFIXES, _Sink
@@ -85,6 +86,7 @@ class ChunkedResult:
 # public API
 
 
+@system_arrow_memory()
 def analyse_chunked(
     path: str | os.PathLike,
     out_path: str | os.PathLike | None = None,

@@ -20,7 +20,7 @@ from wallstress.bundled import data_dir
 from wallstress.errors import InputError, OutputError
 from wallstress.options import Options
 from wallstress.progress import Progress
-from wallstress.read.studies import read_studies
+from wallstress.read.studies import read_studies, system_arrow_memory
 from wallstress.schema.vocabulary import CLINICAL_CAUTION
 from wallstress.write.results import (
     planned_outputs,
@@ -89,6 +89,7 @@ def _source_methods(analysis: Analysis, study) -> None:
     }
 
 
+@system_arrow_memory()
 def analyse_file(
     path: str | Path,
     out: str | Path | None = None,
@@ -116,18 +117,21 @@ def analyse_file(
         Progress(4, enabled=None if not quiet else False) as bar,
     ):
         study = read_studies(path, sheet=options.sheet, columns=options.columns)
-        if out_path.suffix.lower() in (".xlsx", ".xlsm"):
+        workbook = out_path.suffix.lower() in (".xlsx", ".xlsm")
+        if workbook:
             check_fits_xlsx(*study.table.shape, out_path)  # refuse before computing, not after
         bar.step(f"read {len(study.table)} rows")
+        numbers = [study.numbers]
+        if not (in_place or workbook):
+            # the parsed numbers serve a workbook's number cells only: otherwise the analysis
+            # takes them over (popped in the call, so that this frame holds none of them) and
+            # frees those it does not use as they are (a column whose values a check blanked)
+            study = replace(study, numbers={})
         analysis = analyse_with_findings(
-            study.table, options, prior_findings=study.findings, numbers=study.numbers
+            study.table, options, prior_findings=study.findings, numbers=numbers.pop()
         )
         _source_methods(analysis, study)
         require_lv_dimensions(analysis, path)
-        if not (in_place or out_path.suffix.lower() in (".xlsx", ".xlsm")):
-            # the parsed numbers serve a workbook's number cells only; those the analysis does not
-            # hold (a column it blanked values of has its own copy) are freed before writing
-            study = replace(study, numbers={})
         bar.step("measures computed")
         written = write_results(
             analysis, out_path, study, in_place=in_place, escape_formulas=escape_formulas
@@ -159,14 +163,17 @@ def with_options(options: Options, **changes) -> Options:
 
 def _read_and_analyse(path, options: Options):
     study = read_studies(Path(path), sheet=options.sheet, columns=options.columns)
+    numbers = [study.numbers]  # taken over by the analysis, as in analyse_file
+    study = replace(study, numbers={})
     analysis = analyse_with_findings(
-        study.table, options, prior_findings=study.findings, numbers=study.numbers
+        study.table, options, prior_findings=study.findings, numbers=numbers.pop()
     )
     _source_methods(analysis, study)
     require_lv_dimensions(analysis, path)
     return study, analysis
 
 
+@system_arrow_memory()
 def track_file(
     path: str | Path,
     out: str | Path,
@@ -202,6 +209,7 @@ def track_file(
     return JobResult(analysis, list(getattr(written, "paths", written)), notes)
 
 
+@system_arrow_memory()
 def report_file(
     path: str | Path,
     out: str | Path,
@@ -239,6 +247,7 @@ def report_file(
         return written
 
 
+@system_arrow_memory()
 def calibrate_file(
     path: str | Path,
     out: str | Path,

@@ -216,3 +216,28 @@ def test_canonical_numbers_in_cm_share_the_users_memory_read_only():
     with pytest.raises(ValueError, match="read-only"):
         lvidd[0] = 99.0
     pd.testing.assert_frame_equal(df, before)
+
+
+def test_partition_columns_go_straight_into_the_whole_table():
+    """A partition's float columns are copied into the whole table's arrays as they are put, and
+    read back from there; other columns (Categoricals, integers) are kept as put (common practice,
+    no source)."""
+    import threading
+
+    from wallstress.analysis import pipeline
+
+    whole: dict = {}
+    into = pipeline._Into(whole, threading.Lock(), 5, 2, 4)
+    values = np.array([1.5, np.nan])
+    into["x"] = values
+    into["c"] = pd.Categorical(["a", "b"])
+    into["i"] = np.array([1, 2])
+    into["short"] = np.array([1.0])  # not one value per row of the partition: kept as put
+    assert into.written == {"x"} and set(whole) == {"x"}
+    np.testing.assert_array_equal(whole["x"][2:4], values)
+    assert np.shares_memory(into["x"], whole["x"]) and not np.shares_memory(into["x"], values)
+    assert isinstance(into["c"], pd.Categorical) and into["i"].dtype.kind == "i"
+    np.testing.assert_array_equal(into["short"], [1.0])
+    other = pipeline._Into(whole, threading.Lock(), 5, 0, 2)  # a second partition: same array
+    other["x"] = np.array([3.0, 4.0])
+    np.testing.assert_array_equal(whole["x"][[0, 1, 2]], [3.0, 4.0, 1.5])

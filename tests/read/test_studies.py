@@ -303,3 +303,26 @@ def test_number_parsing_fallback_keeps_gaps(monkeypatch):
     slow = csv_in._parse_floats(cells)
     for got in (fast, slow):
         assert got[0] == float("1.5") and np.isnan(got[1]) and got[2] == float("2e-3")
+
+
+def test_arrow_memory_from_the_system_only_while_a_job_runs(tmp_path):
+    """The file-level jobs take Arrow's buffers from malloc while they run and leave Arrow's
+    default pool as they found it, after a finished run and after a refused one (a program that
+    imports wallstress keeps its own choice; common practice, no source)."""
+    import pyarrow as pa
+
+    from wallstress.errors import InputError
+    from wallstress.jobs import analyse_file
+    from wallstress.read.studies import system_arrow_memory
+
+    before = pa.default_memory_pool().backend_name
+    with system_arrow_memory():
+        assert pa.default_memory_pool().backend_name == "system"
+    assert pa.default_memory_pool().backend_name == before
+    src = tmp_path / "s.csv"
+    pd.DataFrame(ROWS, columns=HEADER).to_csv(src, index=False)
+    analyse_file(src, tmp_path / "out.csv")
+    assert pa.default_memory_pool().backend_name == before
+    with pytest.raises(InputError):
+        analyse_file(tmp_path / "missing.csv", tmp_path / "out2.csv")
+    assert pa.default_memory_pool().backend_name == before

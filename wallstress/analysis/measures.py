@@ -67,9 +67,14 @@ class Measures:
             )
 
 
-def compute(c: pd.DataFrame, o: Options, refset) -> tuple[dict, list, dict]:
-    """All measures from a validated canonical table: (columns, findings, used)."""
-    m = Measures(c, o, refset)
+def compute(
+    c: pd.DataFrame, o: Options, refset, out: dict | None = None
+) -> tuple[dict, list, dict]:
+    """All measures from a validated canonical table: (columns, findings, used).
+
+    ``out``: the mapping the columns are put in (by ``out[name] = values`` only, never changed
+    after), e.g. one that writes them straight into a larger table; a new dict by default."""
+    m = Measures(c, o, refset, {} if out is None else out)
     for group in GROUPS:
         group(m)
     return m.out, m.parts, m.used

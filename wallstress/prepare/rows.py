@@ -26,20 +26,30 @@ _TRAILER = re.compile(
 )
 
 
-def non_study_rows(raw: pd.DataFrame, canonical: pd.DataFrame, blanked=()) -> np.ndarray:
+def lv_given(canonical: pd.DataFrame) -> pd.DataFrame:
+    """Which LV dimensions each row gives (a finite value, before any check blanks one): what
+    :func:`non_study_rows` reads of the mapped table, one byte per cell, so that the mapped
+    values themselves need not be kept for it."""
+    lv = [c for c in schema.LINEAR_FIELDS if c in canonical.columns]
+    return pd.DataFrame(
+        {c: np.isfinite(canonical[c].to_numpy(dtype=float)) for c in lv}, index=canonical.index
+    )
+
+
+def non_study_rows(raw: pd.DataFrame, given: pd.DataFrame, blanked=()) -> np.ndarray:
     """True for each row that is blank, or a trailer or footnote with no LV dimension.
 
-    ``blanked``: rows whose cells the reader emptied (error values, uncalculated formulas);
-    they had content and stay studies."""
+    ``given``: :func:`lv_given` of the mapped table. ``blanked``: rows whose cells the reader
+    emptied (error values, uncalculated formulas); they had content and stay studies."""
     n = len(raw)
     out = np.zeros(n, dtype=bool)
     if n == 0:
         return out
     # a row with IVSd, LVIDd and PWd all given is a study: only the others are looked at
-    main = [c for c in ("ivsd_cm", "lvidd_cm", "pwd_cm") if c in canonical.columns]
+    main = [c for c in ("ivsd_cm", "lvidd_cm", "pwd_cm") if c in given.columns]
     complete = np.ones(n, dtype=bool) if len(main) == 3 else np.zeros(n, dtype=bool)
     for c in main if len(main) == 3 else ():
-        complete &= np.isfinite(canonical[c].to_numpy(dtype=float))
+        complete &= given[c].to_numpy(dtype=bool)
     look = np.flatnonzero(~complete)
     if not look.size:
         out[np.asarray(blanked, dtype="int64")] = False
@@ -47,10 +57,9 @@ def non_study_rows(raw: pd.DataFrame, canonical: pd.DataFrame, blanked=()) -> np
     sub = raw.iloc[look]
     filled = sub.notna().to_numpy()
     n_filled = filled.sum(axis=1)
-    lv = [c for c in schema.LINEAR_FIELDS if c in canonical.columns]
     has_lv = (
-        np.isfinite(canonical[lv].to_numpy(dtype=float)[look]).any(axis=1)
-        if lv
+        given.to_numpy(dtype=bool)[look].any(axis=1)
+        if given.shape[1]
         else np.zeros(look.size, dtype=bool)
     )
     found = n_filled == 0

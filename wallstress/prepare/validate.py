@@ -166,7 +166,8 @@ def across_rows_parts(
     rules: tuple | None = None,
 ) -> list[pd.DataFrame]:
     """The findings of ``rules`` (of :data:`ACROSS_ROWS`, the last rules of :data:`RULES`)
-    alone; each reads ids and dates only, so that each may run in a thread of its own."""
+    alone; each reads ids and dates only (:data:`ACROSS_ROWS_FIELDS`), so that each may run in
+    a thread of its own."""
     check = _Check(canonical, labels or {}, raw, numbers=False)
     for rule in ACROSS_ROWS if rules is None else rules:
         rule(check)
@@ -367,4 +368,5 @@ def repeated_study_ids(check: _Check) -> None:
 # rules across rows compare rows by their ids and dates, which no rule blanks, and come last.
 ROW_RULES = (ranges, diameters, walls, pressures, age, sex)
 ACROSS_ROWS = (repeated_visits, repeated_study_ids)
+ACROSS_ROWS_FIELDS: tuple[str, ...] = ("patient_id", "study_id", "study_date")  # all they read
 RULES = ROW_RULES + ACROSS_ROWS
