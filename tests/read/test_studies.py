@@ -318,6 +318,9 @@ def test_arrow_memory_from_the_system_only_while_a_job_runs(tmp_path):
     before = pa.default_memory_pool().backend_name
     with system_arrow_memory():
         assert pa.default_memory_pool().backend_name == "system"
+        with system_arrow_memory():  # a second job beside it (the web page runs them in threads)
+            pass
+        assert pa.default_memory_pool().backend_name == "system"  # the first still runs
     assert pa.default_memory_pool().backend_name == before
     src = tmp_path / "s.csv"
     pd.DataFrame(ROWS, columns=HEADER).to_csv(src, index=False)

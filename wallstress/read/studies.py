@@ -35,6 +35,7 @@ from __future__ import annotations
 
 import contextlib
 import hashlib
+import threading
 from pathlib import Path
 
 import pandas as pd
@@ -133,6 +134,10 @@ def read_studies(
     return st
 
 
+_POOL_LOCK = threading.Lock()
+_POOL_USERS = [0, None]  # jobs running with the system pool, and the pool they found
+
+
 @contextlib.contextmanager
 def system_arrow_memory():
     """Arrow's buffers taken from the C library's allocator (``malloc``) while a job runs, then
@@ -142,15 +147,23 @@ def system_arrow_memory():
     with the text kept for writing, so that they cannot go back to the system: at 10^6 rows it held
     about 90 MiB more after reading, and the peak of ``analyse_file`` on a CSV was 895 against 827
     MiB with ``malloc`` (benchmarks/, peak RSS), at the same speed. Scoped to the file-level jobs, so
-    that a program importing wallstress keeps its own choice; buffers remember the pool they came
-    from, so a job running beside another in a thread frees into the right one.
+    that a program importing wallstress keeps its own choice: the first job to start sets it and
+    the last to end (the web page runs several in threads) puts back the pool it found. Buffers
+    remember the pool they came from, so each is freed into the right one.
     """
-    before = pa.default_memory_pool()
-    pa.set_memory_pool(pa.system_memory_pool())
+    with _POOL_LOCK:
+        if _POOL_USERS[0] == 0:
+            _POOL_USERS[1] = pa.default_memory_pool()
+            pa.set_memory_pool(pa.system_memory_pool())
+        _POOL_USERS[0] += 1
     try:
         yield
     finally:
-        pa.set_memory_pool(before)
+        with _POOL_LOCK:
+            _POOL_USERS[0] -= 1
+            if _POOL_USERS[0] == 0:
+                pa.set_memory_pool(_POOL_USERS[1])
+                _POOL_USERS[1] = None
 
 
 def release_parser_memory() -> None:
