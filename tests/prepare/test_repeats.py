@@ -94,6 +94,33 @@ def test_wide_fixed_ids_fall_back_to_a_hash():
 
 @settings(max_examples=200, deadline=None)
 @given(
+    st.lists(st.integers(0, 2**62 - 1), max_size=40),
+    st.lists(st.integers(0, 39), max_size=40),
+    st.integers(0, 2),
+)
+def test_wide_keys_with_few_or_many_repeats(distinct, copies, spread):
+    """Keys too wide to count (the bucketed hash): the rows pandas' ``duplicated(keep=False)``
+    marks, whether few rows share a bucket or most, and out of order."""
+    keys = distinct + [distinct[i] for i in copies if i < len(distinct)] * spread
+    k = np.array(keys[::-1], dtype=np.int64)
+    present = np.ones(k.size, dtype=bool)
+    want = pd.Series(k).duplicated(keep=False).tolist()
+    assert repeated(k, present, 2**62).tolist() == want
+
+
+def test_wide_keys_at_scale():
+    """10^5 wide keys, 1 % repeated: the bucketed path (most rows alone in their bucket) marks
+    exactly pandas' rows."""
+    rng = np.random.default_rng(3)
+    k = rng.integers(0, 2**62, 100_000)
+    k[rng.integers(0, k.size, 1000)] = k[rng.integers(0, k.size, 1000)]
+    want = pd.Series(k).duplicated(keep=False).to_numpy()
+    assert want.sum() > 0
+    np.testing.assert_array_equal(repeated(k, np.ones(k.size, dtype=bool), 2**62), want)
+
+
+@settings(max_examples=200, deadline=None)
+@given(
     st.lists(
         st.tuples(
             st.one_of(st.none(), st.sampled_from(["P01", "P02", "P10", "Q01"])),

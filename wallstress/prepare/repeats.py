@@ -11,7 +11,8 @@ An id column becomes one integer per row (:func:`id_keys`), equal exactly where 
 - any other column is factorized (one hash).
 
 Repeated keys are then found in one pass where they are in order (a list sorted by id), by a
-count where their span is small, else by pandas' hash table of integers. Measured on 10^6 text
+count where their span is small, else by pandas' hash table of integers (on the rows that share a
+bucket of a cheap hash with another row only). Measured on 10^6 text
 ids on 2 cores: packing about 15 ms, against about 100-190 ms for Arrow's or pandas' hash.
 """
 
@@ -109,12 +110,36 @@ def repeated(keys: np.ndarray, present: np.ndarray, span: int) -> np.ndarray:
         hit = np.r_[same, False] | np.r_[False, same]
     elif span <= COUNT_SPAN_PER_ROW * k.size:
         hit = np.bincount(k, minlength=span)[k] > 1
-    else:  # pandas' hash table of integers: faster than a sort, with few repeats or many
-        hit = pd.Series(k).duplicated(keep=False).to_numpy()
+    else:
+        hit = _repeated_wide(k)
     if present.all():
         return hit
     out[present] = hit
     return out
+
+
+def _repeated_wide(k: np.ndarray) -> np.ndarray:
+    """:func:`repeated` for keys too wide to count: pandas' hash table of integers (faster than a
+    sort, with few repeats or many), on the rows that share a bucket with another row only.
+
+    Each key is hashed to one of about ``COUNT_SPAN_PER_ROW`` buckets per row (the multiplicative
+    hash of Knuth, The Art of Computer Programming vol. 3, 6.4: the top bits of the key times
+    2^64 / golden ratio) and the buckets counted; equal keys share a bucket, so a row alone in its
+    bucket has no twin. With few repeats (a lab's list: a patient seen again on another day) about
+    a fifth of the rows are left to hash, 59 -> 27 ms at 10^6 rows; when most rows share a bucket
+    (a list of repeats) every row is hashed, as without the buckets.
+    """
+    bits = max(1, int(COUNT_SPAN_PER_ROW * k.size - 1).bit_length())
+    bucket = (k.astype(np.uint64) * np.uint64(0x9E3779B97F4A7C15)) >> np.uint64(64 - bits)
+    bucket = bucket.astype(np.intp)
+    shared = np.bincount(bucket, minlength=1 << bits)[bucket] > 1
+    del bucket
+    if shared.mean() > 0.5:
+        return pd.Series(k).duplicated(keep=False).to_numpy()
+    hit = np.zeros(k.size, dtype=bool)
+    rows = np.flatnonzero(shared)
+    hit[rows] = pd.Series(k[rows]).duplicated(keep=False).to_numpy()
+    return hit
 
 
 def repeated_pairs(a: pd.Series, b: pd.Series) -> np.ndarray:
