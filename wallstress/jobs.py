@@ -121,12 +121,10 @@ def analyse_file(
         if workbook:
             check_fits_xlsx(*study.table.shape, out_path)  # refuse before computing, not after
         bar.step(f"read {len(study.table)} rows")
-        numbers = [study.numbers]
-        if not (in_place or workbook):
-            # the parsed numbers serve a workbook's number cells only: otherwise the analysis
-            # takes them over (popped in the call, so that this frame holds none of them) and
-            # frees those it does not use as they are (a column whose values a check blanked)
-            study = replace(study, numbers={})
+        if in_place or workbook:
+            numbers = [study.numbers]
+        else:
+            study, numbers = study.handed_over()
         analysis = analyse_with_findings(
             study.table, options, prior_findings=study.findings, numbers=numbers.pop()
         )
@@ -163,8 +161,7 @@ def with_options(options: Options, **changes) -> Options:
 
 def _read_and_analyse(path, options: Options):
     study = read_studies(Path(path), sheet=options.sheet, columns=options.columns)
-    numbers = [study.numbers]  # taken over by the analysis, as in analyse_file
-    study = replace(study, numbers={})
+    study, numbers = study.handed_over()
     analysis = analyse_with_findings(
         study.table, options, prior_findings=study.findings, numbers=numbers.pop()
     )

@@ -329,3 +329,16 @@ def test_arrow_memory_from_the_system_only_while_a_job_runs(tmp_path):
     with pytest.raises(InputError):
         analyse_file(tmp_path / "missing.csv", tmp_path / "out2.csv")
     assert pa.default_memory_pool().backend_name == before
+
+
+def test_handing_over_the_parsed_numbers_leaves_the_table_as_read(tmp_path):
+    """A job that writes no workbook hands the reader's parsed numbers to the analysis: the table
+    it keeps has none, the cells are the same objects, and the table it came from is unchanged
+    (common practice, no source)."""
+    src = tmp_path / "s.csv"
+    pd.DataFrame(ROWS, columns=HEADER).to_csv(src, index=False)
+    study = read_studies(src)
+    assert set(study.numbers) == set(NUMERIC)
+    kept, numbers = study.handed_over()
+    assert kept.numbers == {} and kept.table is study.table
+    assert numbers == [study.numbers] and numbers[0] is study.numbers

@@ -19,7 +19,7 @@ import pandas as pd
 from wallstress.analysis.pipeline import analyse_with_findings
 from wallstress.errors import InputError
 from wallstress.options import Options
-from wallstress.read.studies import STUDY_LIST_SUFFIXES, read_studies
+from wallstress.read.studies import STUDY_LIST_SUFFIXES, read_studies, system_arrow_memory
 from wallstress.schema.fields import BY_NAME
 
 # the study lists looked for in a folder (text notes beside the exports are not taken for one)
@@ -78,11 +78,13 @@ def expand(paths) -> list[Path]:
     return unique
 
 
+@system_arrow_memory()
 def read_export(path: Path, options: Options) -> Export:
     """One file read, mapped and validated on its own (its headers, its units)."""
     study = read_studies(path, sheet=options.sheet, columns=options.columns)
+    study, numbers = study.handed_over()
     analysis = analyse_with_findings(
-        study.table, options, prior_findings=study.findings, numbers=study.numbers
+        study.table, options, prior_findings=study.findings, numbers=numbers.pop()
     )
     canonical = analysis.canonical.copy()
     n = len(canonical)
