@@ -327,3 +327,19 @@ def test_worst_severity_per_row():
         }
     )
     assert flags.worst_severity(other, 4).tolist() == [1, 2, 0, -1]
+
+
+def test_column_level_keys_are_text_and_missing_is_empty():
+    """The same finding about a column, reported by two partitions or chunks, gives the same key;
+    a missing value (None, NaN, NA) has no text and is the empty one (common practice, no
+    source)."""
+    a = fnd.make([-1], code="unit_inferred", severity="note", message="m", column="c", field="f")
+    b = fnd.make([-1], code="unit_inferred", severity="note", message="m", column="c", field="f")
+    assert (
+        fnd.column_level_keys(a) == fnd.column_level_keys(b) == [("unit_inferred", "c", "f", "m")]
+    )
+    odd = pd.DataFrame(
+        {"code": ["x", None], "column": [np.nan, "c"], "field": [pd.NA, "f"], "message": [1, ""]},
+        dtype=object,
+    )
+    assert fnd.column_level_keys(odd) == [("x", "", "", "1"), ("", "c", "f", "")]

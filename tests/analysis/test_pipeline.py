@@ -241,3 +241,21 @@ def test_partition_columns_go_straight_into_the_whole_table():
     other = pipeline._Into(whole, threading.Lock(), 5, 0, 2)  # a second partition: same array
     other["x"] = np.array([3.0, 4.0])
     np.testing.assert_array_equal(whole["x"][[0, 1, 2]], [3.0, 4.0, 1.5])
+
+
+def test_partition_text_columns_joined_by_their_codes():
+    """Pieces on the same categories are joined code by code; pieces on other categories are
+    unioned, each value kept (pandas' ``union_categoricals`` is the reference)."""
+    from pandas.api.types import union_categoricals
+
+    from wallstress.analysis import pipeline
+
+    same = [
+        pd.Categorical(["a", "b"], categories=["", "a", "b"]),
+        pd.Categorical(["b", None], categories=["", "a", "b"]),
+    ]
+    joined = pipeline._joined_categoricals(same)
+    assert list(joined.categories) == ["", "a", "b"]
+    pd.testing.assert_extension_array_equal(joined, union_categoricals(same))
+    other = [pd.Categorical(["a"]), pd.Categorical(["c"])]
+    assert list(pipeline._joined_categoricals(other).astype(object)) == ["a", "c"]

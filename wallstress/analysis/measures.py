@@ -33,6 +33,7 @@ class Measures:
     parts: list = field(default_factory=list)  # findings tables, in rule order
     used: dict = field(default_factory=dict)  # output column -> formula / coefficients used
     sbp: np.ndarray | None = None  # mean cuff SBP, set by afterload for stroke work
+    first_row: int = 0  # the partition's first row in the whole table (the findings' rows)
 
     def __post_init__(self):
         c = self.canonical
@@ -57,7 +58,7 @@ class Measures:
         if mask.any():
             self.parts.append(
                 fnd.make(
-                    np.flatnonzero(mask),
+                    np.flatnonzero(mask) + self.first_row,
                     code=code,
                     severity=severity,
                     message=message,
@@ -68,13 +69,15 @@ class Measures:
 
 
 def compute(
-    c: pd.DataFrame, o: Options, refset, out: dict | None = None
+    c: pd.DataFrame, o: Options, refset, out: dict | None = None, first_row: int = 0
 ) -> tuple[dict, list, dict]:
     """All measures from a validated canonical table: (columns, findings, used).
 
     ``out``: the mapping the columns are put in (by ``out[name] = values`` only, never changed
-    after), e.g. one that writes them straight into a larger table; a new dict by default."""
-    m = Measures(c, o, refset, {} if out is None else out)
+    after), e.g. one that writes them straight into a larger table; a new dict by default.
+    ``first_row``: where ``c`` starts in the whole table (a partition), added to the rows of the
+    findings on rows (a finding about a column keeps row -1)."""
+    m = Measures(c, o, refset, {} if out is None else out, first_row=first_row)
     for group in GROUPS:
         group(m)
     return m.out, m.parts, m.used

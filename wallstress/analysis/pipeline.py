@@ -328,7 +328,7 @@ def _compute_in_partitions(
 
     def work(b):
         into = _Into(numbers, lock, n, *b)
-        out, parts, used = compute(c.iloc[b[0] : b[1]], o, refset, out=into)
+        out, parts, used = compute(c.iloc[b[0] : b[1]], o, refset, out=into, first_row=b[0])
         out = {name: None if name in into.written else v for name, v in out.items()}
         return out, parts, used
 
@@ -343,20 +343,32 @@ def _compute_in_partitions(
                 if p is not None:
                     numbers[name][start:stop] = p
             out[name] = numbers.pop(name)
-        elif isinstance(pieces[0], pd.Categorical):  # same categories: the codes are joined
-            out[name] = union_categoricals(pieces)
+        elif isinstance(pieces[0], pd.Categorical):
+            out[name] = _joined_categoricals(pieces)
         else:
             out[name] = np.concatenate(pieces)
         del pieces
     parts, seen = [], set()
-    for (start, _), r in zip(bounds, results, strict=True):
+    for r in results:  # the rows of the findings on rows are the whole table's already
         for f in r[1]:
-            rows = f["row"].to_numpy()
-            if (rows < 0).all():  # a finding about a column: once, however many partitions say it
+            if (f["row"].to_numpy() < 0).all():  # about a column: once, however many say it
                 keys = fnd.column_level_keys(f)
                 if not seen.issuperset(keys):
                     seen.update(keys)
                     parts.append(f)
             else:
-                parts.append(f.assign(row=rows + start) if start else f)
+                parts.append(f)
     return out, parts, results[0][2]
+
+
+def _joined_categoricals(pieces: list) -> pd.Categorical:
+    """The partitions' pieces of one text column, in order. Each group builds its column on a
+    fixed list of categories, so the codes are joined as they are (``union_categoricals`` checks
+    and re-codes them: ~0.3 ms per column and piece); pieces of other categories are unioned."""
+    dtype = pieces[0].dtype
+    if all(
+        p.dtype.ordered == dtype.ordered and p.categories.equals(dtype.categories) for p in pieces
+    ):
+        codes = np.concatenate([p.codes for p in pieces])
+        return pd.Categorical.from_codes(codes, dtype=dtype, validate=False)
+    return union_categoricals(pieces)
