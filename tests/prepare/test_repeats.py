@@ -108,6 +108,20 @@ def test_wide_keys_with_few_or_many_repeats(distinct, copies, spread):
     assert repeated(k, present, 2**62).tolist() == want
 
 
+def test_wide_keys_with_few_buckets(monkeypatch):
+    """Buckets capped far below the rows (as past 5.5 x 10^6 rows): the same rows as pandas'
+    ``duplicated(keep=False)``, whether most rows share a bucket or few."""
+    from wallstress.prepare import repeats
+
+    monkeypatch.setattr(repeats, "MAX_BUCKET_BITS", 4)
+    rng = np.random.default_rng(1)
+    for n in (3, 10, 50, 1000):
+        k = rng.integers(0, 2**62, n)
+        k[: n // 3] = k[n - n // 3 :]
+        want = pd.Series(k).duplicated(keep=False).to_numpy()
+        np.testing.assert_array_equal(repeated(k, np.ones(n, dtype=bool), 2**62), want)
+
+
 def test_wide_keys_at_scale():
     """10^5 wide keys, 1 % repeated: the bucketed path (most rows alone in their bucket) marks
     exactly pandas' rows."""
