@@ -244,18 +244,20 @@ def test_partition_columns_go_straight_into_the_whole_table():
 
 
 def test_partition_text_columns_joined_by_their_codes():
-    """Pieces on the same categories are joined code by code; pieces on other categories are
-    unioned, each value kept (pandas' ``union_categoricals`` is the reference)."""
+    """Pieces on the same categories are joined code by code, as pandas' ``union_categoricals``
+    (the reference) joins them; pieces on other categories are left to it (None)."""
     from pandas.api.types import union_categoricals
-
-    from wallstress.analysis import pipeline
 
     same = [
         pd.Categorical(["a", "b"], categories=["", "a", "b"]),
         pd.Categorical(["b", None], categories=["", "a", "b"]),
     ]
-    joined = pipeline._joined_categoricals(same)
+    joined = fnd.join_categoricals(same)
     assert list(joined.categories) == ["", "a", "b"]
     pd.testing.assert_extension_array_equal(joined, union_categoricals(same))
-    other = [pd.Categorical(["a"]), pd.Categorical(["c"])]
-    assert list(pipeline._joined_categoricals(other).astype(object)) == ["a", "c"]
+    assert fnd.join_categoricals([pd.Categorical(["a"]), pd.Categorical(["c"])]) is None
+    reordered = [
+        pd.Categorical(["a"], categories=["a", "b"]),
+        pd.Categorical(["a"], categories=["b", "a"]),
+    ]
+    assert fnd.join_categoricals(reordered) is None  # same set, other order: codes differ
