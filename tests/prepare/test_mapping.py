@@ -196,6 +196,37 @@ def test_ids_as_text():
     assert out.iloc[2:].isna().all() and pd.api.types.is_string_dtype(out.dtype)
 
 
+@settings(max_examples=200, deadline=None)
+@example(["A-7", None, "B"], 1)
+@example(["\u3000A", "B"], 0)
+@given(
+    st.lists(
+        st.one_of(
+            st.none(),
+            st.text(alphabet="A0-~ \t\u00a0\u3000\u2009é", max_size=5),
+        ),
+        min_size=1,
+        max_size=8,
+    ),
+    st.integers(0, 3),
+)
+def test_text_ids_left_as_read_only_where_stripping_changes_nothing(texts, skip):
+    """Text ids are stripped of spaces at both ends (any Unicode space: the Unicode Standard's
+    White_Space property) and an empty id is missing; the shortcut that skips stripping when no
+    cell begins or ends with anything but printable ASCII gives the same ids as stripping every
+    cell (pyarrow's utf8_trim_whitespace, the reference), also on a slice of a longer array
+    (Arrow's offset)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    whole = pa.array(["  pad  "] * skip + texts, type=pa.large_string())
+    arr = whole.slice(skip)
+    got = parse_ids(pd.Series(pd.array(arr, dtype=pd.StringDtype("pyarrow", np.nan))))
+    want = pc.utf8_trim_whitespace(arr).to_pylist()
+    want = [None if w is None or w == "" else w for w in want]
+    assert [None if pd.isna(g) else g for g in got.tolist()] == want
+
+
 def test_whole_number_ids_are_exact_integers():
     """A column of whole numbers is read as integer ids (Int64), exactly: 2^60 and 2^60 + 1 are two
     ids, though a float64 cannot tell them apart (IEEE 754 double: 53-bit significand). Blank is
@@ -378,41 +409,81 @@ def test_factorize_text_vs_pandas(values, start):
     assert uniq.is_unique  # one code per distinct text: " F" and "F" share theirs
 
 
-@settings(max_examples=150, deadline=None)
+@settings(max_examples=200, deadline=None)
 @example(["2262-01-05"])  # a year datetime64[ns] holds only in part: both paths leave it unread
 @example(["1677-12-31", "2021-03-04"])
+@example(["2023-02-29", "2024-02-29"])  # no such day in 2023: the whole column goes the long way
+@example([None, "2021-03-04"])
+@example([None])
 @given(
     st.lists(
         st.one_of(
             # across both ends of what datetime64[ns] holds (1677-09-21 to 2262-04-11)
             st.dates(dt.date(1600, 1, 1), dt.date(2300, 12, 31)).map(lambda d: d.isoformat()),
-            st.tuples(st.integers(1990, 2030), st.integers(1, 13), st.integers(1, 31)).map(
+            st.tuples(st.integers(1990, 2030), st.integers(0, 13), st.integers(0, 32)).map(
                 lambda t: f"{t[0]}-{t[1]}-{t[2]}"
             ),
-            st.sampled_from(["", "na", "-", "2021/02/03", "03/02/2021", "0001-01-01", "x"]),
+            st.tuples(st.integers(1990, 2030), st.integers(0, 13), st.integers(0, 32)).map(
+                lambda t: f"{t[0]:04d}-{t[1]:02d}-{t[2]:02d}"  # plain in form, maybe no such day
+            ),
+            st.sampled_from(
+                [
+                    "",
+                    "na",
+                    "-",
+                    None,
+                    "2021/02/03",
+                    "03/02/2021",
+                    "0001-01-01",
+                    "0000-01-01",
+                    "x",
+                    " 2021-02-03",
+                    "2021-02-03 ",
+                    "2021-02-03T10:00",
+                    "20210203",
+                ]
+            ),
         ),
         min_size=1,
         max_size=10,
     )
 )
-def test_plain_iso_fast_path_reads_as_the_general_path(texts):
-    """Dates read by the one-call path for plain YYYY-MM-DD columns equal those read by the
-    general path (regexes, day/month evidence), with the same problems flagged; texts that are
-    not all plain ISO take the general path. Reference: the general path itself, whose ISO and
-    day-first rules are tested above against ISO 8601."""
+def test_plain_iso_fast_paths_read_as_the_general_path(texts):
+    """Dates read by the one-call paths for plain YYYY-MM-DD columns (Arrow's parser on Arrow
+    text, pandas' on the distinct texts) equal those read by the general path (regexes,
+    day/month evidence), with the same problems flagged; texts that are not all plain ISO take
+    the general path. Reference: the general path itself, whose ISO and day-first rules are
+    tested above against ISO 8601."""
     from wallstress.prepare import dates as date_parse
 
-    s = pd.Series(texts, dtype="str")
-    fast = date_parse.parse_dates(s)
-    original = date_parse._plain_iso_dates
-    date_parse._plain_iso_dates = lambda t, missing: None
-    try:
-        general = date_parse.parse_dates(s)
-    finally:
-        date_parse._plain_iso_dates = original
-    pd.testing.assert_series_equal(fast[0], general[0])
-    for k in general[1]:
-        assert np.array_equal(fast[1][k], general[1][k]), k
+    for s in (pd.Series(texts, dtype="str"), pd.Series(texts, dtype=object)):
+        fast = date_parse.parse_dates(s)
+        originals = date_parse._plain_iso_dates, date_parse._arrow_iso_dates
+        date_parse._plain_iso_dates = lambda t, missing: None
+        date_parse._arrow_iso_dates = lambda s: None
+        try:
+            general = date_parse.parse_dates(s)
+        finally:
+            date_parse._plain_iso_dates, date_parse._arrow_iso_dates = originals
+        pd.testing.assert_series_equal(fast[0], general[0])
+        for k in general[1]:
+            assert np.array_equal(fast[1][k], general[1][k]), k
+
+
+def test_arrow_iso_path_reads_plain_iso_text_only():
+    """The Arrow path takes a column only when every present cell is YYYY-MM-DD and a real day
+    (ISO 8601-1:2019, calendar date, complete representation, extended format); 2023-02-29 does
+    not exist (2023 is not a leap year: Gregorian rule, common practice, no source), so that
+    column goes the long way and the cell gets its finding there."""
+    from wallstress.prepare import dates as date_parse
+
+    got = date_parse._arrow_iso_dates(pd.Series(["2024-02-29", None, "1999-12-31"], dtype="str"))
+    assert got.tolist()[0] == pd.Timestamp("2024-02-29") and pd.isna(got.tolist()[1])
+    for texts in (["2023-02-29"], ["2021-02-03", "na"], ["2021-2-3"], [None], ["0001-01-01"]):
+        assert date_parse._arrow_iso_dates(pd.Series(texts, dtype="str")) is None, texts
+    dates, problems = date_parse.parse_dates(pd.Series(["2023-02-29", "2023-03-01"], dtype="str"))
+    assert pd.isna(dates[0]) and dates[1] == pd.Timestamp("2023-03-01")
+    assert problems["date_unreadable"].tolist() == [True, False]
 
 
 def test_placeholder_date_outside_datetime_range_is_a_finding_not_a_stop():

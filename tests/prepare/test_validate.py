@@ -31,6 +31,44 @@ def test_unusual_value_is_kept_with_warning():
     assert "lvidd_cm_unusual" in _codes(f, 0)
 
 
+def test_every_typical_range_lies_within_its_hard_range():
+    """The range check compares only the values outside typical with the hard range, which is
+    right only if a value outside hard is always outside typical. Common practice, no source:
+    what is impossible is also unusual."""
+    from wallstress.schema.fields import BY_NAME
+
+    for name, f in BY_NAME.items():
+        if f.hard is not None and f.typical is not None:
+            assert f.hard[0] <= f.typical[0] <= f.typical[1] <= f.hard[1], name
+
+
+@settings(max_examples=150, deadline=None)
+@given(
+    st.lists(
+        st.one_of(st.floats(allow_nan=True, allow_infinity=True), st.sampled_from([2.9, 3.0, 3.4])),
+        min_size=1,
+        max_size=12,
+    )
+)
+def test_range_findings_as_two_separate_comparisons(values):
+    """Impossible (outside 3.0-10.0 cm for LVIDd) and unusual (outside 3.5-7.5 cm, not
+    impossible) rows, blanked values and findings, against both comparisons written out on
+    every value (the ranges of schema/fields.py; common practice, no source)."""
+    from wallstress.schema.fields import BY_NAME
+
+    f = BY_NAME["lvidd_cm"]
+    v = np.array(values, dtype=float)
+    c, found = validate(pd.DataFrame({"lvidd_cm": v, "sex": ["F"] * len(v)}))
+    with np.errstate(invalid="ignore"):
+        bad = (v < f.hard[0]) | (v > f.hard[1])
+        unusual = ~bad & ((v < f.typical[0]) | (v > f.typical[1]))
+    got = c["lvidd_cm"].to_numpy()
+    assert np.array_equal(np.isnan(got), np.isnan(v) | bad)
+    for code, want in (("lvidd_cm_impossible", bad), ("lvidd_cm_unusual", unusual)):
+        rows = found.loc[found["code"] == code, "row"].tolist()
+        assert rows == np.flatnonzero(want).tolist(), code
+
+
 def test_lvids_not_below_lvidd():
     """Common practice, no source: the cavity is smaller at end-systole than at end-diastole."""
     c, f = validate(

@@ -9,10 +9,14 @@ with the historical 1900-02-29; serials from 61 on count from 1899-12-30).
 
 from __future__ import annotations
 
+import datetime as dt
+
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
-from wallstress.prepare.cells import _expand, _is_missing_text, factorize_text
+from wallstress.prepare.cells import _arrow_text, _expand, _is_missing_text, factorize_text
 
 DATE_MIN = pd.Timestamp("1950-01-01")
 
@@ -103,12 +107,44 @@ def _from_serial(v: np.ndarray) -> tuple[pd.Series, np.ndarray]:
 
 
 def _dates_from_text(s: pd.Series, probs: dict, order: str = "auto") -> tuple[pd.Series, dict]:
+    iso = _arrow_iso_dates(s)
+    if iso is not None:
+        return iso, probs  # every present cell read: no problem to flag
     codes, uniq = factorize_text(s)
     out_u, probs_u = _dates_from_unique(uniq, {k: np.zeros(len(uniq), bool) for k in probs}, order)
     out = pd.Series(_expand(out_u.to_numpy(dtype="datetime64[ns]"), codes, np.datetime64("NaT")))
     return out.astype("datetime64[ns]"), {
         k: _expand(v, codes, False).astype(bool) for k, v in probs_u.items()
     }
+
+
+# the first and last day of READABLE_YEARS, in days since 1970-01-01 (Arrow's date32)
+_READABLE_DAYS = tuple(
+    (d - dt.date(1970, 1, 1)).days
+    for d in (dt.date(READABLE_YEARS[0], 1, 1), dt.date(READABLE_YEARS[1], 12, 31))
+)
+
+
+def _arrow_iso_dates(s: pd.Series) -> pd.Series | None:
+    """The dates of a column held as Arrow text whose every present cell is a plain YYYY-MM-DD,
+    read by Arrow's own parser in one call, with no distinct texts hashed; None otherwise (a
+    missing token, spaces, another form, a day that does not exist, a year outside
+    ``READABLE_YEARS``): the column then takes the paths below, which give the same dates for
+    these cells (a property test compares them). Measured on 10^6 cells: ~15 ms against ~35 ms.
+    """
+    text = _arrow_text(s)
+    if text is None or text.null_count == len(text):
+        return None
+    try:
+        days = pc.cast(text, pa.date32())  # strict: exactly YYYY-MM-DD, a real day of the year
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        return None
+    # the present days as days since 1970-01-01 (year 0 has no Python date)
+    first, last = (d.as_py() for d in pc.min_max(days.cast(pa.int32())).values())
+    if first < _READABLE_DAYS[0] or last > _READABLE_DAYS[1]:
+        return None
+    # datetime64[ns], NaT where missing
+    return pd.Series(pc.cast(days, pa.timestamp("ns")).to_numpy(zero_copy_only=False))
 
 
 def _plain_iso_dates(t: pd.Series, missing: np.ndarray) -> pd.Series | None:

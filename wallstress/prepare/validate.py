@@ -175,12 +175,22 @@ def across_rows_parts(
 
 
 def ranges(check: _Check) -> None:
-    """Outside the field's hard range: impossible, blanked, an error; outside typical: a warning."""
+    """Outside the field's hard range: impossible, blanked, an error; outside typical: a warning.
+
+    Every typical range lies within its hard range (a test), so only the values outside typical
+    are compared with the hard range: one pass over most columns, where all values are usual."""
     for name in list(check.nums):
         f, v = BY_NAME[name], check.nums[name]
         with np.errstate(invalid="ignore"):
+            outside = None if f.typical is None else (v < f.typical[0]) | (v > f.typical[1])
             if f.hard is not None:
-                bad = (v < f.hard[0]) | (v > f.hard[1])
+                if outside is None:
+                    bad = (v < f.hard[0]) | (v > f.hard[1])
+                else:  # within typical is within hard
+                    bad = np.zeros(v.shape, dtype=bool)
+                    if outside.any():
+                        rows = np.flatnonzero(outside)
+                        bad[rows] = (v[rows] < f.hard[0]) | (v[rows] > f.hard[1])
                 check.rule(
                     bad,
                     f"{name}_impossible",
@@ -192,10 +202,12 @@ def ranges(check: _Check) -> None:
                     v,
                 )
                 check.blank(name, bad)
+                if outside is not None and check.nums[name] is not v:  # some blanked
+                    outside &= ~bad
                 v = check.nums[name]
-            if f.typical is not None:
+            if outside is not None:
                 check.rule(
-                    (v < f.typical[0]) | (v > f.typical[1]),
+                    outside,
                     f"{name}_unusual",
                     "warning",
                     f"{f.meaning.rstrip('.')} is outside the usual adult {f.typical[0]:g}-"
