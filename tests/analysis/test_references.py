@@ -139,3 +139,16 @@ def test_malformed_lab_set_says_what_is_wrong(tmp_path, change, message):
     pd.DataFrame([row]).to_csv(p, index=False)
     with pytest.raises(ReferenceSetError, match=message):
         references.load_set(str(p))
+
+
+def test_records_read_once_and_handed_out_as_new_dicts():
+    """The methods record of every run lists the set's rows: read from the rows once per set,
+    each run gets its own dicts, so that one run's record cannot change the next one's. The
+    records are the set's rows other than settings (the bundled table itself)."""
+    s = references.load_set(references.DEFAULT_SET)
+    first = s.as_records()
+    assert len(first) == int((s.rows["kind"] != "setting").sum())
+    first[0]["value"] = "changed"
+    first.append({"measure": "added"})
+    second = s.as_records()
+    assert second[0]["value"] != "changed" and len(second) == len(first) - 1

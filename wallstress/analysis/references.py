@@ -131,6 +131,7 @@ class ReferenceSet:
         self.rows = rows
         self.path = path
         self._coefficients: dict[str, dict[str, Coefficient]] = {}  # model -> its coefficients
+        self._records: list[dict] | None = None  # as_records, once
         settings = {r.measure: _text(r.note) for r in rows[rows["kind"] == "setting"].itertuples()}
         self.title = settings.get("title", name)
         # warnings a calibration wrote into the set (a line not written, a small sample...): they
@@ -204,12 +205,15 @@ class ReferenceSet:
         return r[r["verified"] != "published"]
 
     def as_records(self) -> list[dict]:
-        """The set's rows as plain dicts (for the methods record)."""
-        keep = self.rows[self.rows["kind"] != "setting"]
-        return [
-            {k: _text(v) if not isinstance(v, float) else v for k, v in rec.items()}
-            for rec in keep.to_dict("records")
-        ]
+        """The set's rows as plain dicts (for the methods record): new dicts each call, read
+        from the rows once per set (the methods record of every run asks; ~5 ms each time)."""
+        if self._records is None:
+            keep = self.rows[self.rows["kind"] != "setting"]
+            self._records = [
+                {k: _text(v) if not isinstance(v, float) else v for k, v in rec.items()}
+                for rec in keep.to_dict("records")
+            ]
+        return [dict(r) for r in self._records]
 
 
 def _read_set_csv(source, label: str) -> pd.DataFrame:
