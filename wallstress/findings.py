@@ -344,7 +344,9 @@ def join_categoricals(pieces: list[pd.Categorical]) -> pd.Categorical | None:
     re-coding each piece (~0.3 ms a piece); None when their categories differ."""
     dtype = pieces[0].dtype
     if not all(
-        p.dtype.ordered == dtype.ordered and p.categories.equals(dtype.categories) for p in pieces
+        p.dtype is dtype  # one shared dtype (_one_text_dtype, SEVERITY_DTYPE): no compare
+        or (p.dtype.ordered == dtype.ordered and p.categories.equals(dtype.categories))
+        for p in pieces
     ):
         return None
     codes = np.concatenate([p.codes for p in pieces])

@@ -152,3 +152,8 @@ def test_records_read_once_and_handed_out_as_new_dicts():
     first.append({"measure": "added"})
     second = s.as_records()
     assert second[0]["value"] != "changed" and len(second) == len(first) - 1
+    h27 = references.load_set("esc_esh_2018_h27")  # a bundled set with unverified rows
+    unverified = h27.unverified_records()
+    assert unverified and unverified == h27.unverified().to_dict("records")
+    unverified[0]["value"] = "changed"
+    assert h27.unverified_records()[0]["value"] != "changed"

@@ -59,7 +59,7 @@ def build_methods(
         f"{r['measure']} {r.get('sex', '')} {r.get('grade', '')}: {r['value']} ({r['source']}; {r['verified']})".replace(
             "  ", " "
         )
-        for r in refset.unverified().to_dict("records")
+        for r in refset.unverified_records()
     ]
     formula_rows = _formula_rows(used)
     unverified += [

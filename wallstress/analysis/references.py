@@ -132,6 +132,7 @@ class ReferenceSet:
         self.path = path
         self._coefficients: dict[str, dict[str, Coefficient]] = {}  # model -> its coefficients
         self._records: list[dict] | None = None  # as_records, once
+        self._unverified: list[dict] | None = None  # unverified_records, once
         settings = {r.measure: _text(r.note) for r in rows[rows["kind"] == "setting"].itertuples()}
         self.title = settings.get("title", name)
         # warnings a calibration wrote into the set (a line not written, a small sample...): they
@@ -203,6 +204,12 @@ class ReferenceSet:
         """Rows whose value was not checked against a published text."""
         r = self.rows[self.rows["kind"].isin(["cutoff", "coefficient"])]
         return r[r["verified"] != "published"]
+
+    def unverified_records(self) -> list[dict]:
+        """:meth:`unverified` as plain dicts: new dicts each call, read once per set (~1.4 ms)."""
+        if self._unverified is None:
+            self._unverified = self.unverified().to_dict("records")
+        return [dict(r) for r in self._unverified]
 
     def as_records(self) -> list[dict]:
         """The set's rows as plain dicts (for the methods record): new dicts each call, read
