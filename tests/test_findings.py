@@ -74,6 +74,47 @@ def test_make_per_row_messages():
     assert f["message"].astype(object).tolist() == ["bad 'a'", "bad 'b'", "bad 'a'"]
 
 
+@settings(max_examples=200, deadline=None)
+@given(
+    st.one_of(
+        st.lists(st.one_of(st.floats(), st.sampled_from([1.0, 2.5, 1e7])), max_size=30).map(
+            lambda v: np.array(v, dtype=float)
+        ),
+        st.lists(st.integers(-3, 3), max_size=30).map(lambda v: np.array(v, dtype=np.int64)),
+        st.lists(
+            st.one_of(st.none(), st.integers(0, 2), st.floats(0, 2), st.booleans(), st.text("ab")),
+            max_size=30,
+        ).map(lambda v: np.array(v + [None], dtype=object)[:-1] if v else np.array([], object)),
+    )
+)
+def test_text_codes_as_a_sort_of_the_keys_gives_them(values):
+    """Each row's text is ``to_text`` of its own value, with the distinct texts in order of first
+    appearance: the same codes and texts as when the representative rows are taken by
+    ``np.unique`` (numpy's reference, a sort) instead of the keys' running high."""
+    codes, texts = fnd.text_codes(values, fnd._as_text)
+    assert [texts[c] for c in codes] == [fnd._as_text(v) for v in values.tolist()]
+    assert len(set(texts)) == len(texts)
+    key = _keys_of(values)
+    if key.size:
+        first = np.unique(key, return_index=True)[1]
+        want_codes, want = pd.factorize(
+            np.asarray([fnd._as_text(v) for v in values[first].tolist()], dtype=object)
+        )
+        assert np.array_equal(codes, want_codes[key]) and texts == [str(t) for t in want]
+
+
+def _keys_of(values):
+    """The keys text_codes numbers its values by (pandas' factorize, as it calls it)."""
+    if values.dtype.kind == "f":
+        return pd.factorize(values, use_na_sentinel=False)[0]
+    if values.dtype.kind in "iubU":
+        return pd.factorize(values)[0]
+    arr = values.astype(object)
+    vcode, _ = pd.factorize(arr, use_na_sentinel=False)
+    tcode, types = pd.factorize(np.fromiter(map(type, arr), dtype=object, count=arr.size))
+    return vcode if len(types) == 1 else pd.factorize(vcode * len(types) + tcode)[0]
+
+
 def test_make_rejects_unknown_severity():
     with pytest.raises(ValueError, match="severity must be one of"):
         fnd.make([0], code="x", severity="fatal", message="m")
