@@ -31,8 +31,10 @@ def lv_given(canonical: pd.DataFrame) -> pd.DataFrame:
     :func:`non_study_rows` reads of the mapped table, one byte per cell, so that the mapped
     values themselves need not be kept for it."""
     lv = [c for c in schema.LINEAR_FIELDS if c in canonical.columns]
-    return pd.DataFrame(
-        {c: np.isfinite(canonical[c].to_numpy(dtype=float)) for c in lv}, index=canonical.index
+    return pd.DataFrame(  # copy=False: each mask its own column, not copied into one block
+        {c: np.isfinite(canonical[c].to_numpy(dtype=float)) for c in lv},
+        index=canonical.index,
+        copy=False,
     )
 
 
@@ -57,11 +59,9 @@ def non_study_rows(raw: pd.DataFrame, given: pd.DataFrame, blanked=()) -> np.nda
     sub = raw.iloc[look]
     filled = sub.notna().to_numpy()
     n_filled = filled.sum(axis=1)
-    has_lv = (
-        given.to_numpy(dtype=bool)[look].any(axis=1)
-        if given.shape[1]
-        else np.zeros(look.size, dtype=bool)
-    )
+    has_lv = np.zeros(look.size, dtype=bool)
+    for c in given.columns:  # only the rows looked at, column by column (no 2-D copy)
+        has_lv |= given[c].to_numpy(dtype=bool)[look]
     found = n_filled == 0
     # a trailer or total names itself in its first cell and fills few others ("Total,,,,40");
     # a footnote is one cell of several words with no LV dimension
