@@ -454,8 +454,9 @@ def test_factorize_text_vs_pandas(values, start):
     )
 )
 def test_plain_iso_fast_paths_read_as_the_general_path(texts):
-    """Dates read by the one-call paths for plain YYYY-MM-DD columns (Arrow's parser on Arrow
-    text, pandas' on the distinct texts) equal those read by the general path (regexes,
+    """Dates read by the one-call path for plain YYYY-MM-DD columns (Arrow's parser, on a whole
+    column held as Arrow text, or on its distinct texts with the missing tokens left empty)
+    equal those read by the general path (regexes,
     day/month evidence), with the same problems flagged; texts that are not all plain ISO take
     the general path. Reference: the general path itself, whose ISO and day-first rules are
     tested above against ISO 8601."""
@@ -463,29 +464,32 @@ def test_plain_iso_fast_paths_read_as_the_general_path(texts):
 
     for s in (pd.Series(texts, dtype="str"), pd.Series(texts, dtype=object)):
         fast = date_parse.parse_dates(s)
-        originals = date_parse._plain_iso_dates, date_parse._arrow_iso_dates
-        date_parse._plain_iso_dates = lambda t, missing: None
-        date_parse._arrow_iso_dates = lambda s: None
+        original = date_parse._plain_iso_dates
+        date_parse._plain_iso_dates = lambda *args: None
         try:
             general = date_parse.parse_dates(s)
         finally:
-            date_parse._plain_iso_dates, date_parse._arrow_iso_dates = originals
+            date_parse._plain_iso_dates = original
         pd.testing.assert_series_equal(fast[0], general[0])
         for k in general[1]:
             assert np.array_equal(fast[1][k], general[1][k]), k
 
 
-def test_arrow_iso_path_reads_plain_iso_text_only():
-    """The Arrow path takes a column only when every present cell is YYYY-MM-DD and a real day
+def test_plain_iso_path_reads_plain_iso_text_only():
+    """The one-call path takes a column only when every present cell is YYYY-MM-DD and a real day
     (ISO 8601-1:2019, calendar date, complete representation, extended format); 2023-02-29 does
     not exist (2023 is not a leap year: Gregorian rule, common practice, no source), so that
     column goes the long way and the cell gets its finding there."""
     from wallstress.prepare import dates as date_parse
 
-    got = date_parse._arrow_iso_dates(pd.Series(["2024-02-29", None, "1999-12-31"], dtype="str"))
+    got = date_parse._plain_iso_dates(pd.Series(["2024-02-29", None, "1999-12-31"], dtype="str"))
     assert got.tolist()[0] == pd.Timestamp("2024-02-29") and pd.isna(got.tolist()[1])
     for texts in (["2023-02-29"], ["2021-02-03", "na"], ["2021-2-3"], [None], ["0001-01-01"]):
-        assert date_parse._arrow_iso_dates(pd.Series(texts, dtype="str")) is None, texts
+        assert date_parse._plain_iso_dates(pd.Series(texts, dtype="str")) is None, texts
+    # on distinct texts, a missing token marked as such stays empty and the rest are read
+    tokens = pd.Series(["2021-02-03", "na"], dtype="str")
+    got = date_parse._plain_iso_dates(tokens, np.array([False, True]))
+    assert got[0] == pd.Timestamp("2021-02-03") and pd.isna(got[1])
     dates, problems = date_parse.parse_dates(pd.Series(["2023-02-29", "2023-03-01"], dtype="str"))
     assert pd.isna(dates[0]) and dates[1] == pd.Timestamp("2023-03-01")
     assert problems["date_unreadable"].tolist() == [True, False]

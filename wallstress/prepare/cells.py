@@ -111,6 +111,16 @@ def _arrow_text(s: pd.Series) -> pa.Array | None:
     return arr if pa.types.is_large_string(arr.type) or pa.types.is_string(arr.type) else None
 
 
+def text_buffers(text: pa.Array) -> tuple[np.ndarray, np.ndarray]:
+    """The offsets (one more than the cells, from the array's own offset) and the data bytes of
+    Arrow text (``string`` or ``large_string``), as numpy views of its buffers: no copy. Cell
+    ``i`` is ``data[offsets[i]:offsets[i + 1]]``; a missing cell's offsets may hold bytes."""
+    offset_type = np.int64 if pa.types.is_large_string(text.type) else np.int32
+    _, offsets, data = text.buffers()
+    edges = np.frombuffer(offsets, dtype=offset_type)[text.offset : text.offset + len(text) + 1]
+    return edges, np.frombuffer(data, dtype=np.uint8) if data else np.zeros(0, dtype=np.uint8)
+
+
 def _single_byte_codes(arr: pa.Array) -> tuple[np.ndarray, list[str]] | None:
     """Codes and distinct texts of a string array whose every present value is one byte long
     (a sex column of F/M, a code column of digits), read off the data buffer without hashing a
@@ -122,13 +132,12 @@ def _single_byte_codes(arr: pa.Array) -> tuple[np.ndarray, list[str]] | None:
     lo, hi = pc.min_max(lengths).values()
     if lo.as_py() != 1 or hi.as_py() != 1:  # also None when every value is missing
         return None
-    offset_type = np.int64 if pa.types.is_large_string(arr.type) else np.int32
-    _, offsets, data = arr.buffers()
-    starts = np.frombuffer(offsets, dtype=offset_type)[arr.offset : arr.offset + n]
+    edges, data = text_buffers(arr)
+    starts = edges[:-1]
     missing = arr.is_null().to_numpy(zero_copy_only=False) if arr.null_count else None
     if missing is not None:  # a missing value's offset may point past the data
         starts = np.where(missing, 0, starts)
-    byte = np.frombuffer(data, dtype=np.uint8)[starts].astype(np.int16)  # one byte: ASCII
+    byte = data[starts].astype(np.int16)  # one byte: ASCII
     if missing is not None:
         byte[missing] = -1
     present = np.flatnonzero(np.bincount(byte[byte >= 0], minlength=128))
@@ -377,9 +386,7 @@ def _nothing_to_strip(text: pa.Array) -> bool:
     character beyond ASCII, which may be a space of another script) gives False."""
     if text.null_count == len(text):
         return True
-    offset_type = np.int64 if pa.types.is_large_string(text.type) else np.int32
-    _, offsets, data = text.buffers()
-    edges = np.frombuffer(offsets, dtype=offset_type)[text.offset : text.offset + len(text) + 1]
+    edges, cells = text_buffers(text)
     starts, ends = edges[:-1], edges[1:]
     if text.null_count:
         present = text.is_valid().to_numpy(zero_copy_only=False)
@@ -388,7 +395,6 @@ def _nothing_to_strip(text: pa.Array) -> bool:
         return True
     if (ends <= starts).any():  # an empty cell: stripping makes it missing
         return False
-    cells = np.frombuffer(data, dtype=np.uint8)
     printable = np.uint8(0x7E - 0x21)  # below 0x21, the difference wraps above this
     return bool(
         ((cells[starts] - np.uint8(0x21)) <= printable).all()

@@ -22,6 +22,8 @@ import numpy as np
 import pandas as pd
 import pyarrow as pa
 
+from wallstress.prepare.cells import text_buffers
+
 # keys (and pair keys) stay below this, so that products and sums of them fit in an int64
 KEY_LIMIT = 2**62
 # a count (np.bincount) is used where the keys span at most this many times the rows
@@ -54,11 +56,7 @@ def packed_text(text: pa.Array, present: np.ndarray) -> tuple[np.ndarray, int] |
         pa.types.is_large_string(text.type) or pa.types.is_string(text.type)
     ):
         return None
-    offsets_type = np.int64 if pa.types.is_large_string(text.type) else np.int32
-    buffers = text.buffers()
-    offsets = np.frombuffer(buffers[1], dtype=offsets_type)[
-        text.offset : text.offset + len(text) + 1
-    ]
+    offsets, cells = text_buffers(text)
     lengths = np.diff(offsets)
     width = int(lengths[present][0])
     # every present cell that long, and every missing one empty (Arrow allows a missing cell to
@@ -66,7 +64,7 @@ def packed_text(text: pa.Array, present: np.ndarray) -> tuple[np.ndarray, int] |
     if width == 0 or (lengths != np.where(present, width, 0)).any():
         return None
     # the present cells' bytes, one row each: missing cells take no bytes between them
-    data = np.frombuffer(buffers[2], dtype=np.uint8)[offsets[0] : offsets[-1]]
+    data = cells[offsets[0] : offsets[-1]]
     grid = data.reshape(-1, width)
     low, high = _column_min_max(grid)
     radix = high.astype(np.int64) - low + 1
